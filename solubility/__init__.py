@@ -1,0 +1,47 @@
+"""solubility: thermodynamics of interstitial solid solutions.
+
+From the geometry of interstitial sites to two-sublattice CALPHAD models and exact solvus lines computed on
+open thermodynamic databases. Importing the package is cheap: the public names below are loaded on first use,
+so ``import solubility`` does not import pycalphad, xarray or matplotlib.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+__version__ = "0.1.0"
+
+# public name -> module that defines it
+_EXPORTS = {
+    "Structure": "structure",
+    "builtin_structure": "structure",
+    "read_structure": "structure",
+    "load_structure": "structure",
+    "SiteFamily": "sites",
+    "find_sites": "sites",
+    "misfit": "sites",
+    "SublatticeModel": "model",
+    "load_database": "database",
+    "audit_database": "database",
+    "bundled_databases": "database",
+    "solvus": "solvus",
+    "sweep": "sweep",
+    "read_job": "sweep",
+    "Case": "sweep",
+}
+
+__all__ = ["__version__", *sorted(_EXPORTS)]
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'solubility' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

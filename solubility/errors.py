@@ -1,0 +1,51 @@
+"""The exception hierarchy of `solubility`.
+
+Every error the tool raises on purpose is a `SolubilityError`. Those caused by what the user gave also subclass
+the matching builtin (`ValueError`, `FileNotFoundError`, ...), so callers that catch builtins keep working.
+The command line turns any `SolubilityError` into one line on standard error and exit status 2.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ConvergenceError",
+    "DatabaseError",
+    "DatabaseNotFoundError",
+    "InputError",
+    "JobError",
+    "OutputError",
+    "SolubilityError",
+    "StructureError",
+]
+
+
+class SolubilityError(Exception):
+    """Base class of every error raised by `solubility` on purpose."""
+
+
+class InputError(SolubilityError, ValueError):
+    """A value given by the user is not acceptable (the message names it and what is accepted)."""
+
+
+class StructureError(InputError):
+    """A lattice, basis or structure file is invalid."""
+
+
+class DatabaseError(SolubilityError, ValueError):
+    """A thermodynamic database cannot be read, or lacks a phase, element or species asked for."""
+
+
+class DatabaseNotFoundError(DatabaseError, FileNotFoundError):
+    """A database path does not exist and is not the name of a bundled database."""
+
+
+class JobError(InputError):
+    """A sweep job (file or list of cases) is invalid; the message names the case and the key."""
+
+
+class OutputError(SolubilityError, OSError):
+    """An output file cannot be written (exists already, unwritable folder, full disk)."""
+
+
+class ConvergenceError(SolubilityError, RuntimeError):
+    """A calculation did not converge where a result was required (points in a line are flagged instead)."""
