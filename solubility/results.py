@@ -1,0 +1,290 @@
+"""Results: temperature specs, the solvus Dataset schema, unit conversion and CSV / NetCDF / JSON export.
+
+Dataset schema (dims ``T`` and, for chemical potentials, ``component``; ``change`` for partner changes):
+
+========== ======== =====================================================================
+variable    units    meaning
+========== ======== =====================================================================
+X           1        mole fraction of the solute in the host phase at the solvus
+W           1        mass fraction of the solute in the host phase
+PPM         ppm      parts per million by mass (mg/kg)
+Y           1        site fraction of the solute on the host's interstitial sublattice
+partner     -        phases at zero amount on the boundary, joined by "+"; "" when none
+status      -        ok, host_unstable, no_partner or failed
+converged   -        False only where the calculation failed (status "failed")
+reason      -        why a point has no number; "" otherwise
+MU          J/mol    chemical potentials of the elements at the boundary
+DF_OTHER    J/mol    largest driving force of any other candidate phase (<= 0 on a checked boundary)
+========== ======== =====================================================================
+
+Attrs are flat and NetCDF-safe: database name and sha256, host phase, solute, site ratios, fixed contents (JSON),
+excluded phases, pressure, package versions and creation time.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from collections.abc import Sequence
+from datetime import UTC, datetime
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = [
+    "CAUTION",
+    "build_dataset",
+    "parse_temperatures",
+    "solvus_json",
+    "write_csv",
+    "write_json",
+    "write_netcdf",
+]
+
+CAUTION = (
+    "Results are only as good as the thermodynamic database; verify them against measurements before use. "
+    "Applicable codes and qualified engineering practice take precedence."
+)
+ZERO_CELSIUS = 273.15
+MAX_TEMPERATURES = 1_000_000
+_RANGE = re.compile(r"^\s*([^:]+):([^:]+):([^:]+)\s*$")
+
+
+def _number(text: str, what: str) -> float:
+    try:
+        value = float(text)
+    except (TypeError, ValueError):
+        raise InputError(f"temperature {what} {text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise InputError(f"temperature {what} {text!r} is not a finite number")
+    return value
+
+
+def _range(start: float, stop: float, step: float, spec: str) -> np.ndarray:
+    if step <= 0:
+        raise InputError(f"temperatures {spec!r}: STEP must be > 0")
+    if stop < start:
+        raise InputError(f"temperatures {spec!r}: STOP is below START; give START:STOP:STEP with START <= STOP")
+    n = math.floor((stop - start) / step + 1e-9) + 1
+    if n > MAX_TEMPERATURES:
+        raise InputError(f"temperatures {spec!r} give {n} points; at most {MAX_TEMPERATURES} are accepted")
+    return start + step * np.arange(n)
+
+
+def parse_temperatures(spec, *, celsius: bool = False) -> np.ndarray:
+    """Temperatures in K from a spec.
+
+    Parameters
+    ----------
+    spec
+        "START:STOP:STEP" (STOP included when it lies on the grid), a comma-separated string, a number, or a
+        sequence of numbers.
+    celsius
+        The numbers are degrees Celsius.
+
+    Returns
+    -------
+    numpy.ndarray
+        1-D, K, in the order given; every value > 0 K.
+    """
+    if isinstance(spec, str):
+        m = _RANGE.match(spec)
+        if m:
+            start, stop, step = (_number(t, w) for t, w in zip(m.groups(), ("START", "STOP", "STEP"), strict=True))
+            values = _range(start, stop, step, spec)
+        elif ":" in spec:
+            raise InputError(f"temperatures {spec!r} are not START:STOP:STEP or a comma-separated list")
+        else:
+            parts = [p for p in spec.replace(",", " ").split() if p]
+            if not parts:
+                raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
+            values = np.array([_number(p, "value") for p in parts])
+    else:
+        try:
+            values = np.atleast_1d(np.asarray(spec, dtype=float))
+        except (TypeError, ValueError):
+            raise InputError(f"temperatures {spec!r} are not numbers") from None
+        if values.ndim != 1:
+            raise InputError(f"temperatures must be one-dimensional, got shape {values.shape}")
+        if values.size == 0:
+            raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
+        if not np.all(np.isfinite(values)):
+            raise InputError(f"temperatures {spec!r} hold a value that is not a finite number")
+    if celsius:
+        values = values + ZERO_CELSIUS
+    if np.any(values <= 0):
+        bad = float(values[values <= 0][0]) - (ZERO_CELSIUS if celsius else 0.0)
+        unit = "C" if celsius else "K"
+        raise InputError(f"temperature {bad:g} {unit} is at or below absolute zero; temperatures must be > 0 K")
+    if np.unique(values).size != values.size:
+        raise InputError("temperatures repeat a value; give each temperature once")
+    return values
+
+
+def _versions() -> dict[str, str]:
+    import numpy
+    import pycalphad
+    import scipy
+    import xarray
+
+    from . import __version__
+
+    return {
+        "solubility_version": __version__,
+        "pycalphad_version": str(pycalphad.__version__),
+        "numpy_version": numpy.__version__,
+        "scipy_version": scipy.__version__,
+        "xarray_version": xarray.__version__,
+    }
+
+
+def _composition(line, point) -> tuple[float, float, float]:
+    """(x, w, y) of the solute in the host at a boundary point."""
+    host = line.host
+    pf_moles = line.host_moles
+    y = host.y(point.s)
+    n = pf_moles @ y
+    x = n / n.sum()
+    k = line.elements.index(host.solute)
+    mass = x * line.molar_masses
+    return float(x[k]), float(mass[k] / mass.sum()), float(y[host.solute_index])
+
+
+def build_dataset(line, job):
+    """The solvus Dataset from a `solubility.solvus.SolvusLine` and its `solubility.setup.SolvusJob`."""
+    import xarray as xr
+
+    pts = line.points
+    n = len(pts)
+    X, W, Y = (np.full(n, np.nan) for _ in range(3))
+    for i, p in enumerate(pts):
+        if p.valid:
+            X[i], W[i], Y[i] = _composition(line, p)
+    T = np.array([p.T for p in pts])
+    mu = np.array([p.mu for p in pts]).reshape(n, len(line.elements))
+    host, solute = job.phase, job.solute
+    fix_text = ", ".join(f"u({el}) = {u:g}" for el, u in job.fix) or "none"
+    where = f"in {host}" + (f" ({fix_text})" if job.fix else "")
+    data = {
+        "X": ("T", X, {"units": "1", "long_name": f"mole fraction of {solute} {where}"}),
+        "W": ("T", W, {"units": "1", "long_name": f"mass fraction of {solute} {where}"}),
+        "PPM": ("T", W * 1e6, {"units": "ppm", "long_name": f"{solute} {where}, parts per million by mass"}),
+        "Y": ("T", Y, {"units": "1", "long_name": f"site fraction of {solute} on the interstitial sublattice"}),
+        "partner": ("T", np.array(["+".join(p.partners) for p in pts], dtype=object),
+                    {"units": "", "long_name": "coexisting phase(s) at zero amount"}),
+        "status": ("T", np.array([p.status for p in pts], dtype=object),
+                   {"units": "", "long_name": "ok, host_unstable, no_partner or failed"}),
+        "converged": ("T", np.array([p.converged for p in pts], dtype=bool),
+                      {"units": "", "long_name": "calculation reached a definite answer"}),
+        "reason": ("T", np.array([p.reason for p in pts], dtype=object),
+                   {"units": "", "long_name": "why the point has no number"}),
+        "MU": (("T", "component"), mu, {"units": "J/mol", "long_name": "chemical potential at the solvus"}),
+        "DF_OTHER": ("T", np.array([p.max_other_df if p.valid else np.nan for p in pts]),
+                     {"units": "J/mol", "long_name": "largest driving force of another candidate phase"}),
+        "partner_change_T": ("change", np.array([c.T for c in line.changes], dtype=float),
+                             {"units": "K", "long_name": "temperature where the partner changes"}),
+        "partner_below": ("change", np.array(["+".join(c.below) for c in line.changes], dtype=object),
+                          {"units": "", "long_name": "partner below the change"}),
+        "partner_above": ("change", np.array(["+".join(c.above) for c in line.changes], dtype=object),
+                          {"units": "", "long_name": "partner above the change"}),
+    }
+    coords = {
+        "T": ("T", T, {"units": "K", "long_name": "temperature"}),
+        "T_C": ("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}),
+        "component": ("component", list(line.elements), {"units": "", "long_name": "element"}),
+    }
+    ldb = job.database
+    attrs = {
+        "title": f"solvus of {solute} in {host}",
+        "database": ldb.name,
+        "database_sha256": ldb.sha256 or "",
+        "phase": host,
+        "solute": solute,
+        "balance": job.balance,
+        "site_ratios": f"{line.host.a:g}:{line.host.c:g}",
+        "fix": json.dumps(dict(job.fix)),
+        "exclude": ",".join(job.exclude),
+        "candidates": ",".join(job.candidates),
+        "pressure_Pa": float(job.pressure),
+        **_versions(),
+        "created": datetime.now(UTC).isoformat(timespec="seconds"),
+        "caution": CAUTION,
+    }
+    return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+# ---------------------------------------------------------------------- exports
+def _nan_to_none(values) -> list:
+    return [None if (isinstance(v, float) and not math.isfinite(v)) else v for v in values]
+
+
+def solvus_json(ds) -> dict:
+    """The JSON contract of ``solubility solvus --json`` for one solvus Dataset."""
+    ok = ds["status"].values == "ok"
+    return {
+        "temperature_K": [float(t) for t in ds["T"].values],
+        "mole_fraction": _nan_to_none([float(v) for v in ds["X"].values]),
+        "mass_fraction": _nan_to_none([float(v) for v in ds["W"].values]),
+        "site_fraction": _nan_to_none([float(v) for v in ds["Y"].values]),
+        "partner_phases": [str(p).split("+") if (p and o) else [] for p, o in zip(ds["partner"].values, ok,
+                                                                                   strict=True)],
+        "converged": [bool(v) for v in ds["converged"].values],
+        "status": [str(v) for v in ds["status"].values],
+        "reason": [str(v) for v in ds["reason"].values],
+        "partner_changes": [
+            {"temperature_K": float(t), "below": str(b).split("+"), "above": str(a).split("+")}
+            for t, b, a in zip(ds["partner_change_T"].values, ds["partner_below"].values,
+                               ds["partner_above"].values, strict=True)
+        ],
+        "database": ds.attrs.get("database"),
+        "database_sha256": ds.attrs.get("database_sha256"),
+        "phase": ds.attrs.get("phase"),
+        "solute": ds.attrs.get("solute"),
+    }
+
+
+def csv_text(ds) -> str:
+    """CSV table: one row per temperature, with a commented header of provenance and the caution."""
+    lines = [f"# {k}: {v}" for k, v in ds.attrs.items()]
+    cols = ["T", "T_C", "X", "W", "PPM", "Y", "partner", "status", "reason"]
+    header = [f"{c} [{ds[c].attrs.get('units')}]" if ds[c].attrs.get("units") else c for c in cols]
+    lines.append(",".join(header))
+    for i in range(ds.sizes["T"]):
+        row = []
+        for c in cols:
+            v = ds[c].values[i]
+            if isinstance(v, float | np.floating):
+                row.append("" if not math.isfinite(float(v)) else repr(float(v)))
+            else:
+                text = str(v)
+                row.append(f'"{text}"' if ("," in text or '"' in text) else text)
+        lines.append(",".join(row))
+    return "\n".join(lines) + "\n"
+
+
+def write_csv(ds, path: str | Path) -> Path:
+    """Write the CSV table atomically."""
+    from ._io import atomic_write_text
+
+    return atomic_write_text(path, csv_text(ds))
+
+
+def write_netcdf(ds, path: str | Path) -> Path:
+    """Write the Dataset as NetCDF-4 (h5netcdf) atomically; string variables are stored as text."""
+    from ._io import atomic_write
+
+    out = ds.copy()
+    for name in out.variables:
+        if out[name].dtype == object:
+            out[name] = out[name].astype(str)
+    return atomic_write(path, lambda tmp: out.to_netcdf(tmp, engine="h5netcdf"))
+
+
+def write_json(ds, path: str | Path) -> Path:
+    """Write the JSON contract atomically."""
+    from ._io import atomic_write_text
+
+    return atomic_write_text(path, json.dumps(solvus_json(ds), indent=1) + "\n")

@@ -1,0 +1,156 @@
+"""Validate a solvus request and build (or fetch from the cache) the compiled system it needs.
+
+Everything the user gives is checked here, before any equilibrium work, with one-line errors that name the bad
+value and what is accepted.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+from .errors import InputError
+
+__all__ = ["SolvusJob", "prepare"]
+
+INTERSTITIAL_HINT = ("B", "C", "H", "N", "O")
+
+
+@dataclass(frozen=True)
+class SolvusJob:
+    """A validated solvus request with its compiled system."""
+
+    database: object  # LoadedDatabase
+    phase: str
+    solute: str
+    balance: str
+    fix: tuple[tuple[str, float], ...]
+    exclude: tuple[str, ...]
+    pressure: float
+    candidates: tuple[str, ...]
+    system: object  # ThermoSystem
+    host: object  # HostModel
+
+
+def _check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
+    if fix is None:
+        return {}
+    if not isinstance(fix, Mapping):
+        raise InputError(f"fix {fix!r} is not a mapping of element to u-fraction, e.g. {{'CR': 0.02}}")
+    out: dict[str, float] = {}
+    for el, val in fix.items():
+        name = str(el).strip().upper()
+        try:
+            u = float(val)
+        except (TypeError, ValueError):
+            raise InputError(f"fix {el}={val!r} is not a number; give a u-fraction in (0, 1)") from None
+        if not math.isfinite(u) or not 0.0 < u < 1.0:
+            raise InputError(f"fix {el}={val!r} is outside (0, 1); give a u-fraction in (0, 1)")
+        if name in out:
+            raise InputError(f"fix names {name} twice")
+        out[name] = u
+    total = sum(out.values())
+    if total >= 1.0:
+        raise InputError(f"fix contents sum to {total:g}; they must sum to less than 1 (the balance takes the rest)")
+    return out
+
+
+def _check_pressure(pressure: float) -> float:
+    try:
+        p = float(pressure)
+    except (TypeError, ValueError):
+        raise InputError(f"pressure {pressure!r} is not a number; give Pa > 0") from None
+    if not math.isfinite(p) or p <= 0:
+        raise InputError(f"pressure {pressure!r} must be a finite number of Pa > 0")
+    return p
+
+
+def _substitutional_elements(ratios, species, solute: str) -> tuple[int, list[str]]:
+    """Index of the interstitial sublattice and the substitutional elements of a (hosts)a(X,VA)c phase."""
+    inter = [i for i, sp in enumerate(species) if "VA" in sp and solute in sp]
+    if not inter:
+        raise InputError(f"no sublattice holding {solute} and VA")
+    subst = sorted({el for i, sp in enumerate(species) if i != inter[0] for el in sp if el != "VA"})
+    return inter[0], subst
+
+
+def _host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
+    from .database import check_elements
+
+    ratios, species = ldb.sublattices(phase)
+    try:
+        _, subst = _substitutional_elements(ratios, species, solute)
+    except InputError:
+        held = " : ".join(",".join(sp) for sp in species)
+        raise InputError(
+            f"phase {phase} ({held}) has no interstitial sublattice holding {solute} and VA; "
+            f"a host phase must be (hosts)a({solute},VA)c"
+        ) from None
+    for el in fix:
+        if el not in subst:
+            raise InputError(f"fix element {el} is not on a substitutional sublattice of {phase}; "
+                             f"those hold {', '.join(subst)}")
+    if balance is not None:
+        (balance,) = check_elements(ldb, [balance])
+        if balance not in subst:
+            raise InputError(f"balance element {balance} is not on a substitutional sublattice of {phase}; "
+                             f"those hold {', '.join(subst)}")
+        if balance in fix:
+            raise InputError(f"balance element {balance} is also given in fix")
+        return balance
+    rest = [el for el in subst if el not in fix]
+    if len(rest) != 1:
+        raise InputError(
+            f"host phase {phase} holds {', '.join(rest)} on its substitutional sublattice besides the fixed "
+            "elements; say which is the balance (balance=... or --balance EL)"
+        )
+    return rest[0]
+
+
+def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
+            fix: Mapping[str, float] | None = None, pressure: float = 101325.0,
+            balance: str | None = None) -> SolvusJob:
+    """Check a solvus request against its database and build the compiled system.
+
+    Raises
+    ------
+    InputError, DatabaseError
+        Any bad value, named in a one-line message.
+    """
+    from .database import check_elements, check_phases, load_database
+    from .solvus import _host_model
+    from .thermo import filter_candidate_phases, get_system
+
+    ldb = load_database(database)
+    if not isinstance(phase, str) or not phase.strip():
+        raise InputError(f"phase {phase!r} is not a phase name")
+    (phase,) = check_phases(ldb, [phase.strip().upper()])
+    if not isinstance(solute, str) or not solute.strip():
+        raise InputError(f"solute {solute!r} is not an element name")
+    (solute,) = check_elements(ldb, [solute.strip().upper()])
+    if solute == "VA":
+        raise InputError("solute VA is the vacancy, not an element; give an interstitial element such as C")
+    if isinstance(exclude, str):
+        exclude = [exclude]
+    excluded = check_phases(ldb, [str(p).strip().upper() for p in exclude]) if exclude else ()
+    if phase in excluded:
+        raise InputError(f"host phase {phase} is also excluded")
+    fixed = _check_fix(fix)
+    check_elements(ldb, list(fixed))
+    if solute in fixed:
+        raise InputError(f"solute {solute} cannot also be fixed")
+    p = _check_pressure(pressure)
+    bal = _host_elements(ldb, phase, solute, fixed, balance)
+    elements = sorted({bal, solute, *fixed})
+    candidates = [ph for ph in filter_candidate_phases(ldb.db, elements) if ph not in excluded]
+    if phase not in candidates:
+        raise InputError(f"host phase {phase} cannot form from {', '.join(elements)}")
+    if len(candidates) < 2:
+        raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
+                         f"{', '.join(excluded) or 'nothing'} is excluded")
+    key = ldb.sha256 or f"memory:{id(ldb.db)}"
+    system = get_system(ldb.db, key, elements, candidates, p)
+    host = _host_model(system, phase, solute, fixed, bal)
+    return SolvusJob(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
+                     tuple(candidates), system, host)

@@ -1,0 +1,472 @@
+"""Terminal solubility of an interstitial solute in a host phase against temperature: the exact solvus.
+
+At each temperature the host phase (hosts)a(X,VA)c is held at the given contents of its other elements
+(u-fractions) and its solute content is varied. The solvus is the upper end of the host's single-phase field:
+the smallest solute content at which some other phase (the partner) has zero driving force against the host's
+chemical potentials, every other candidate phase staying below zero. The partner is found at every temperature
+from the driving forces of all candidate phases, never assumed.
+
+Numerics. The solute site fraction y enters as s = ln y, and the host's chemical potentials are evaluated from
+its own Gibbs energy at that composition (`solubility.thermo.ThermoSystem.chemical_potentials`), never taken
+from a global solver. The boundary condition DF_partner(mu(s)) = 0 is solved by a safeguarded Newton iteration
+in s, so the relative accuracy of the composition is the same at x = 1e-3 and at x = 1e-15. Along a line of
+temperatures each point starts from the last; a change of partner is detected by the check of all candidates
+and located by a root search in temperature to 0.01 K.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus", "solvus_line"]
+
+#: a driving force within this of zero (J per mole of atoms) counts as zero (double precision noise of
+#: Gibbs energies of order 1e5 J/mol is about 1e-7 J/mol)
+DF_TOL = 1e-4
+#: phases whose sampled driving force is below -REFINE_MARGIN (J/mol of atoms) are not refined: the error of
+#: the fixed constitution sample is far smaller than this for the smooth CALPHAD functions
+REFINE_MARGIN = 3000.0
+#: smallest solute site fraction searched; a solubility below it is flagged, not returned as a number
+Y_MIN = 1e-30
+#: largest solute site fraction searched (the interstitial sublattice is then practically full)
+Y_MAX = 1.0 - 1e-9
+#: temperature tolerance for locating a change of partner, K
+T_TOL = 0.005
+
+
+@dataclass(frozen=True)
+class HostModel:
+    """The host phase's constitution as a function of one number, s = ln(y_solute).
+
+    Attributes
+    ----------
+    phase
+        Host phase name.
+    solute
+        Interstitial solute element.
+    base_y
+        Site fractions with the solute's and VA's entries still to be set (substitutional ones fixed).
+    solute_index, vacancy_index
+        Indices of the solute and of VA among the host's site-fraction variables.
+    a, c
+        Substitutional and interstitial site ratios (moles of sites per formula unit).
+    """
+
+    phase: str
+    solute: str
+    base_y: np.ndarray
+    solute_index: int
+    vacancy_index: int
+    a: float
+    c: float
+
+    def y(self, s: float) -> np.ndarray:
+        """Site fractions for ln(y_solute) = s (s <= 0)."""
+        y = self.base_y.copy()
+        y[self.solute_index] = math.exp(s)
+        y[self.vacancy_index] = -math.expm1(s)
+        return y
+
+
+@dataclass(frozen=True)
+class BoundaryPoint:
+    """The solvus at one temperature.
+
+    Attributes
+    ----------
+    T
+        Temperature, K.
+    s
+        ln of the solute's site fraction in the host at the boundary (nan when there is none).
+    partners
+        Phases at zero amount on the boundary (one, or two at an invariant).
+    mu
+        Chemical potentials of the elements at the boundary, J/mol (elements order of the system).
+    status
+        "ok" (a boundary, solved and checked), "host_unstable" (the host is not stable at any solute content),
+        "no_partner" (no phase limits the solubility) or "failed" (the solve or its check failed).
+    reason
+        Why there is no number (or why it is not converged); "" otherwise.
+    partner_y
+        Constitution of each partner at the boundary (for warm starts).
+    max_other_df
+        Largest driving force of any non-partner candidate at the boundary, J/mol of atoms (must be <= 0).
+    """
+
+    T: float
+    s: float
+    partners: tuple[str, ...]
+    mu: np.ndarray
+    status: str
+    reason: str = ""
+    partner_y: Mapping[str, np.ndarray] = field(default_factory=dict)
+    max_other_df: float = float("nan")
+
+    @property
+    def valid(self) -> bool:
+        """A boundary was found and checked."""
+        return self.status == "ok"
+
+    @property
+    def converged(self) -> bool:
+        """The calculation reached a definite answer (a boundary, or a definite absence of one)."""
+        return self.status != "failed"
+
+
+@dataclass(frozen=True)
+class PartnerChange:
+    """A temperature where the partner phase changes along the line."""
+
+    T: float  # K, to T_TOL
+    below: tuple[str, ...]
+    above: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class SolvusLine:
+    """Raw result of `solvus_line`: one point per requested temperature (in the order given)."""
+
+    points: tuple[BoundaryPoint, ...]
+    changes: tuple[PartnerChange, ...]
+    host: HostModel
+    elements: tuple[str, ...]
+    molar_masses: np.ndarray
+    candidates: tuple[str, ...]
+    host_moles: np.ndarray  # (n_el, ny): moles of each element per formula unit of the host = host_moles @ y
+
+
+class _Engine:
+    """Boundary solver for one host on one compiled system at one pressure."""
+
+    def __init__(self, system, host: HostModel, candidates: Sequence[str]) -> None:
+        self.system = system
+        self.host = host
+        self.candidates = tuple(candidates)
+        self.others = tuple(p for p in self.candidates if p != host.phase)
+
+    # ---------------------------------------------------------------- primitives
+    def mu(self, s: float, T: float) -> np.ndarray:
+        mu, _ = self.system.chemical_potentials(self.host.phase, self.host.y(s), T)
+        return mu
+
+    def df(self, phase: str, mu: np.ndarray, T: float, y0: np.ndarray | None):
+        if y0 is None:
+            y0 = self.system.screen(mu, T, [phase])[phase][1]
+        return self.system.driving_force(phase, mu, T, y0)
+
+    def all_df(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None = None) -> dict:
+        """Driving force (J/mol of atoms) of every non-host candidate: sampled, then refined where close."""
+        hints = hints or {}
+        sampled = self.system.screen(mu, T, self.others)
+        out = {}
+        for phase, (value, y_best) in sampled.items():
+            if value < -REFINE_MARGIN and phase not in hints:
+                out[phase] = (value, y_best, True)
+                continue
+            best = self.system.driving_force(phase, mu, T, y_best)
+            if phase in hints:
+                alt = self.system.driving_force(phase, mu, T, hints[phase])
+                if alt.value > best.value:
+                    best = alt
+            out[phase] = (best.value, best.y, best.converged)
+        return out
+
+    # ---------------------------------------------------------------- boundary with a known partner
+    def solve_partner(self, phase: str, T: float, s0: float, y0: np.ndarray | None,
+                      bracket: tuple[float, float] | None = None):
+        """Solve DF_phase(mu(s)) = 0 for s by safeguarded Newton; returns (s, DrivingForce) or None."""
+        lo_s, hi_s = math.log(Y_MIN), math.log(Y_MAX)
+        lo = hi = None  # bracket: F(lo) < 0 < F(hi)
+        if bracket is not None:
+            lo, hi = bracket
+        s = min(max(s0, lo_s), hi_s)
+        y_part = y0
+        last = None
+        for _ in range(60):
+            res = self.df(phase, self.mu(s, T), T, y_part)
+            f = res.value
+            y_part = res.y
+            if f < 0:
+                lo = s if lo is None or s > lo else lo
+            else:
+                hi = s if hi is None or s < hi else hi
+            h = 1e-6
+            s2 = s + h if s + h <= hi_s else s - h
+            f2 = self.system.driving_force(phase, self.mu(s2, T), T, y_part).value
+            slope = (f2 - f) / (s2 - s)
+            step = -f / slope if slope > 0 else (1.0 if f < 0 else -1.0)
+            step = max(-5.0, min(5.0, step))
+            s_new = s + step
+            if lo is not None and hi is not None and not (lo < s_new < hi):
+                s_new = 0.5 * (lo + hi)
+            s_new = min(max(s_new, lo_s), hi_s)
+            if abs(s_new - s) < 1e-11 or abs(f) < 1e-9:
+                last = (s_new if abs(f) >= 1e-9 else s, res)
+                break
+            if s_new in (lo_s, hi_s) and s in (lo_s, hi_s):
+                return None  # no root inside the searched range
+            s = s_new
+        if last is None:
+            return None
+        s_root, res = last
+        res = self.df(phase, self.mu(s_root, T), T, res.y)
+        if abs(res.value) > DF_TOL or not res.converged:
+            return None
+        return s_root, res
+
+    # ---------------------------------------------------------------- checks and full solves
+    def finish(self, T: float, s: float, partner_res: Mapping[str, object]) -> BoundaryPoint:
+        """Check every candidate at the boundary s and build the point."""
+        mu = self.mu(s, T)
+        hints = {p: r.y for p, r in partner_res.items()}
+        dfs = self.all_df(mu, T, hints)
+        partners = tuple(sorted(p for p, (v, _, _) in dfs.items() if abs(v) <= DF_TOL))
+        others = [v for p, (v, _, _) in dfs.items() if p not in partners]
+        max_other = max(others) if others else -math.inf
+        partner_y = {p: dfs[p][1] for p in partners}
+        if not partners:
+            return BoundaryPoint(T, s, (), mu, "failed", "no partner at zero driving force", partner_y, max_other)
+        if max_other > DF_TOL:
+            return BoundaryPoint(T, s, partners, mu, "failed", "another phase is more stable at the boundary",
+                                 partner_y, max_other)
+        if not all(dfs[p][2] for p in partners):
+            return BoundaryPoint(T, s, partners, mu, "failed", "partner constitution did not converge",
+                                 partner_y, max_other)
+        return BoundaryPoint(T, s, partners, mu, "ok", "", partner_y, max_other)
+
+    def max_df(self, s: float, T: float) -> tuple[float, str, dict]:
+        dfs = self.all_df(self.mu(s, T), T)
+        phase = max(dfs, key=lambda p: dfs[p][0])
+        return dfs[phase][0], phase, dfs
+
+    def cold(self, T: float) -> BoundaryPoint:
+        """Solve at T from nothing: scan the host's solute content, then solve the first crossing."""
+        grid = np.concatenate((np.log(np.logspace(math.log10(Y_MIN), math.log10(0.5), 31)),
+                               np.log(np.linspace(0.5, Y_MAX, 8)[1:])))
+        values = []
+        for s in grid:
+            f, phase, _ = self.max_df(float(s), T)
+            values.append((f, phase))
+        stable = [f < 0 for f, _ in values]
+        if not any(stable):
+            f, phase = max(values, key=lambda t: t[0])
+            return self._null(T, "host_unstable", f"host phase {self.host.phase} is not stable at any {self.host.solute} content "
+                                 f"({values[0][1]} is more stable)")
+        i0 = stable.index(True)
+        i = i0
+        while i + 1 < len(stable) and stable[i + 1]:
+            i += 1
+        if i + 1 == len(stable):
+            return self._null(T, "no_partner", f"no partner phase: {self.host.phase} takes {self.host.solute} up to a full "
+                                 "interstitial sublattice")
+        lo, hi = float(grid[i]), float(grid[i + 1])
+        partner = values[i + 1][1]
+        return self._crossing(T, lo, hi, partner)
+
+    def _crossing(self, T: float, lo: float, hi: float, partner: str) -> BoundaryPoint:
+        """The first crossing in (lo, hi), where max DF goes from negative to positive."""
+        for _ in range(len(self.others) + 1):
+            sol = self.solve_partner(partner, T, 0.5 * (lo + hi), None, bracket=(lo, hi))
+            if sol is None:
+                return self._null(T, "failed", f"boundary with {partner} did not converge")
+            s, res = sol
+            point = self.finish(T, s, {partner: res})
+            if point.converged or point.reason != "another phase is more stable at the boundary":
+                return point
+            # a phase crosses earlier than `partner`: move the bracket below s and solve for that one
+            _, first, _ = self.max_df(s, T)
+            hi, partner = s, first
+        return self._null(T, "failed", "no consistent first crossing found")
+
+    def warm(self, T: float, prev: BoundaryPoint) -> BoundaryPoint:
+        """Solve at T starting from the point at the previous temperature; None-like point on failure."""
+        partner = prev.partners[0]
+        sol = self.solve_partner(partner, T, prev.s, prev.partner_y.get(partner))
+        if sol is None:
+            return self.cold(T)
+        s, res = sol
+        point = self.finish(T, s, {partner: res})
+        if point.converged:
+            return point
+        return self.cold(T)
+
+    def _null(self, T: float, status: str, reason: str) -> BoundaryPoint:
+        mu = np.full(len(self.system.elements), np.nan)
+        return BoundaryPoint(T, float("nan"), (), mu, status, reason)
+
+    # ---------------------------------------------------------------- partner changes
+    def locate_change(self, a: BoundaryPoint, b: BoundaryPoint) -> PartnerChange:
+        """Locate the temperature between valid points a and b where the partner changes, to T_TOL."""
+        beta, gamma = a.partners[0], next(p for p in b.partners if p not in a.partners)
+        T_lo, T_hi = a.T, b.T
+        s_ref, y_beta, y_gamma = a.s, a.partner_y.get(beta), b.partner_y.get(gamma)
+
+        def h(T: float) -> float | None:
+            sol = self.solve_partner(beta, T, s_ref, y_beta)
+            if sol is None:
+                return None
+            s, _ = sol
+            return self.df(gamma, self.mu(s, T), T, y_gamma).value
+
+        f_lo = h(T_lo)
+        if f_lo is None or f_lo > 0:
+            return PartnerChange(float("nan"), a.partners, b.partners)
+        while T_hi - T_lo > T_TOL:
+            mid = 0.5 * (T_lo + T_hi)
+            f_mid = h(mid)
+            if f_mid is None or f_mid > 0:
+                T_hi = mid
+            else:
+                T_lo = mid
+        return PartnerChange(round(0.5 * (T_lo + T_hi), 3), a.partners, b.partners)
+
+
+# ---------------------------------------------------------------------- input handling
+def _host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str) -> HostModel:
+    pf = system.phases[phase]
+    sub_of = pf.sublattice_of
+    interstitial = [s for s in range(pf.n_sublattices)
+                    if "VA" in [pf.species[j] for j in np.flatnonzero(sub_of == s)]]
+    inter_with_solute = [s for s in interstitial
+                         if solute in [pf.species[j] for j in np.flatnonzero(sub_of == s)]]
+    if len(inter_with_solute) != 1:
+        raise InputError(
+            f"phase {phase} has no interstitial sublattice holding {solute} and VA"
+            if not inter_with_solute else
+            f"phase {phase} holds {solute} on {len(inter_with_solute)} sublattices; one is supported"
+        )
+    s_int = inter_with_solute[0]
+    idx_int = np.flatnonzero(sub_of == s_int)
+    extra = [pf.species[j] for j in idx_int if pf.species[j] not in (solute, "VA")]
+    if extra:
+        raise InputError(f"interstitial sublattice of {phase} also holds {extra}; only {solute} and VA are "
+                         "supported in the system")
+    base = np.zeros(pf.ny)
+    a = 0.0
+    u = dict(fix)
+    u[balance] = 1.0 - sum(fix.values())
+    for s in range(pf.n_sublattices):
+        if s == s_int:
+            continue
+        idx = np.flatnonzero(sub_of == s)
+        names = [pf.species[j] for j in idx]
+        if len(idx) == 1:
+            base[idx[0]] = 1.0
+            if names[0] not in u and names[0] != "VA":
+                raise InputError(f"sublattice {s} of {phase} holds only {names[0]}, which is not the balance "
+                                 f"element {balance} nor fixed")
+        else:
+            missing = [n for n in names if n not in u]
+            if missing:
+                raise InputError(f"sublattice {s} of {phase} holds {names}; give contents for {missing} "
+                                 "with fix=... or leave those elements out")
+            for j, n in zip(idx, names, strict=True):
+                base[j] = u[n]
+        a += pf.site_ratios[s]
+    return HostModel(phase, solute, base, int(idx_int[names_index(pf, idx_int, solute)]),
+                     int(idx_int[names_index(pf, idx_int, "VA")]), a, pf.site_ratios[s_int])
+
+
+def names_index(pf, idx: np.ndarray, name: str) -> int:
+    return [pf.species[j] for j in idx].index(name)
+
+
+def _sorted_order(temperatures: np.ndarray) -> np.ndarray:
+    return np.argsort(temperatures, kind="stable")
+
+
+def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures: Sequence[float],
+                *, hooks=None) -> SolvusLine:
+    """Compute the solvus on a compiled system at each temperature (K).
+
+    Parameters
+    ----------
+    system
+        A `solubility.thermo.ThermoSystem` holding every candidate phase.
+    host
+        The host's constitution (`HostModel`).
+    candidates
+        Phases that may appear (the host included).
+    temperatures
+        K, any order; the result keeps this order.
+    hooks
+        Test hook: a callable ``hooks(T)`` that may raise to inject a failure at one temperature.
+    """
+    engine = _Engine(system, host, candidates)
+    T = np.asarray(temperatures, dtype=float)
+    order = _sorted_order(T)
+    points: list[BoundaryPoint | None] = [None] * T.size
+    changes: list[PartnerChange] = []
+    prev: BoundaryPoint | None = None
+    for k in order:
+        Tk = float(T[k])
+        try:
+            if hooks is not None:
+                hooks(Tk)
+            point = engine.warm(Tk, prev) if prev is not None and prev.valid else engine.cold(Tk)
+        except (ArithmeticError, ValueError, np.linalg.LinAlgError, RuntimeError) as exc:
+            point = BoundaryPoint(Tk, float("nan"), (), np.full(len(system.elements), np.nan), "failed",
+                                  f"solver failed: {exc}")
+        if point.valid and prev is not None and prev.valid and set(point.partners) != set(prev.partners) \
+                and Tk > prev.T:
+            extra = [p for p in point.partners if p not in prev.partners]
+            if extra:
+                changes.append(engine.locate_change(prev, point))
+        points[k] = point
+        if point.valid:
+            prev = point
+        elif point.status != "failed":
+            prev = None  # the line is broken: start the next point from nothing
+    return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
+                      np.asarray(system.molar_masses), tuple(candidates), system.phases[host.phase].moles)
+
+
+def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
+           fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
+           celsius: bool = False):
+    """Terminal solubility of `solute` in the host `phase` against temperature.
+
+    Parameters
+    ----------
+    database
+        Path to a TDB file, the name of a bundled database, or a pycalphad Database.
+    phase
+        Host phase, a two-sublattice (hosts)a(X,VA)c solution such as BCC_A2.
+    solute
+        Interstitial element, such as "C".
+    temperatures
+        Kelvin (Celsius with ``celsius=True``): a sequence, or "START:STOP:STEP" with STOP included.
+    exclude
+        Phases not allowed to appear (for example GRAPHITE for the metastable Fe-Fe3C diagram).
+    fix
+        u-fractions (mole fraction on an interstitial-free basis) of other elements of the host, e.g.
+        ``{"CR": 0.02}``; the balance element takes the rest.
+    pressure
+        Pa.
+    balance
+        The host's balance element; needed only when the host's substitutional sublattice holds several
+        elements not given in `fix`.
+    celsius
+        Temperatures are given in degrees Celsius (results stay in K, with a Celsius coordinate).
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``T``; variables X (mole fraction), W (mass fraction), PPM (ppm by mass), Y (site fraction of the
+        solute on its sublattice), partner, converged, reason, MU (J/mol); partner changes in
+        ``partner_change_T`` along ``change``. A temperature where the host is not stable holds NaN and a
+        reason, never a number.
+    """
+    from .results import build_dataset, parse_temperatures
+    from .setup import prepare
+
+    T = parse_temperatures(temperatures, celsius=celsius)
+    job = prepare(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    line = solvus_line(job.system, job.host, job.candidates, T)
+    return build_dataset(line, job)
