@@ -29,9 +29,10 @@ __all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus", "solvus_lin
 #: a driving force within this of zero (J per mole of atoms) counts as zero (double precision noise of
 #: Gibbs energies of order 1e5 J/mol is about 1e-7 J/mol)
 DF_TOL = 1e-4
-#: phases whose sampled driving force is below -REFINE_MARGIN (J/mol of atoms) are not refined: the error of
-#: the fixed constitution sample is far smaller than this for the smooth CALPHAD functions
-REFINE_MARGIN = 3000.0
+#: phases whose sampled driving force is below -REFINE_MARGIN (J/mol of atoms) are not refined. The sample's
+#: shortfall (refined minus sampled driving force) is of order 10 J/mol for the smooth CALPHAD functions; the
+#: engine also widens a phase's margin to 20 times the largest shortfall it has seen for that phase
+REFINE_MARGIN = 1000.0
 #: smallest solute site fraction searched; a solubility below it is flagged, not returned as a number
 Y_MIN = 1e-30
 #: largest solute site fraction searched (the interstitial sublattice is then practically full)
@@ -94,7 +95,7 @@ class BoundaryPoint:
     reason
         Why there is no number (or why it is not converged); "" otherwise.
     partner_y
-        Constitution of each partner at the boundary (for warm starts).
+        Constitution of each refined phase at its optimum at the boundary (warm starts for the next point).
     max_other_df
         Largest driving force of any non-partner candidate at the boundary, J/mol of atoms (must be <= 0).
     """
@@ -149,6 +150,7 @@ class _Engine:
         self.host = host
         self.candidates = tuple(candidates)
         self.others = tuple(p for p in self.candidates if p != host.phase)
+        self.margin = dict.fromkeys(self.others, REFINE_MARGIN)
 
     # ---------------------------------------------------------------- primitives
     def mu(self, s: float, T: float) -> np.ndarray:
@@ -161,75 +163,84 @@ class _Engine:
         return self.system.driving_force(phase, mu, T, y0)
 
     def all_df(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None = None) -> dict:
-        """Driving force (J/mol of atoms) of every non-host candidate: sampled, then refined where close."""
+        """Driving force (J/mol of atoms) of every non-host candidate at `mu`.
+
+        Each phase is first evaluated on its fixed constitution sample (a lower bound of its driving force).
+        A phase whose best sample lies below minus its margin is taken as it is. Any other is refined: from its
+        hint (its optimum at a nearby state) if it has one, and from its best sample where no hint is given or
+        the sample beats the hint's optimum. Returns {phase: (value, y, converged)}.
+        """
         hints = hints or {}
         sampled = self.system.screen(mu, T, self.others)
         out = {}
         for phase, (value, y_best) in sampled.items():
-            if value < -REFINE_MARGIN and phase not in hints:
+            if value < -self.margin[phase]:
                 out[phase] = (value, y_best, True)
                 continue
-            best = self.system.driving_force(phase, mu, T, y_best)
-            if phase in hints:
-                alt = self.system.driving_force(phase, mu, T, hints[phase])
+            hint = hints.get(phase)
+            best = self.system.driving_force(phase, mu, T, hint if hint is not None else y_best)
+            if hint is not None and value > best.value + DF_TOL:
+                alt = self.system.driving_force(phase, mu, T, y_best)
                 if alt.value > best.value:
                     best = alt
+            self.margin[phase] = max(self.margin[phase], 20.0 * (best.value - value))
             out[phase] = (best.value, best.y, best.converged)
         return out
 
     # ---------------------------------------------------------------- boundary with a known partner
     def solve_partner(self, phase: str, T: float, s0: float, y0: np.ndarray | None,
                       bracket: tuple[float, float] | None = None):
-        """Solve DF_phase(mu(s)) = 0 for s by safeguarded Newton; returns (s, DrivingForce) or None."""
+        """Solve DF_phase(mu(s)) = 0 for s by safeguarded Newton; returns (s, DrivingForce) or None.
+
+        The slope dDF/ds = x_phase . dmu/ds (envelope theorem: the partner's constitution is optimal), with
+        dmu/ds from a forward difference of the host's potentials.
+        """
         lo_s, hi_s = math.log(Y_MIN), math.log(Y_MAX)
-        lo = hi = None  # bracket: F(lo) < 0 < F(hi)
-        if bracket is not None:
-            lo, hi = bracket
+        lo, hi = bracket if bracket is not None else (None, None)  # F(lo) < 0 < F(hi)
         s = min(max(s0, lo_s), hi_s)
         y_part = y0
-        last = None
         for _ in range(60):
-            res = self.df(phase, self.mu(s, T), T, y_part)
-            f = res.value
-            y_part = res.y
+            mu = self.mu(s, T)
+            res = self.df(phase, mu, T, y_part)
+            f, y_part = res.value, res.y
+            if abs(f) < 1e-9:
+                break
             if f < 0:
                 lo = s if lo is None or s > lo else lo
             else:
                 hi = s if hi is None or s < hi else hi
-            h = 1e-6
-            s2 = s + h if s + h <= hi_s else s - h
-            f2 = self.system.driving_force(phase, self.mu(s2, T), T, y_part).value
-            slope = (f2 - f) / (s2 - s)
-            step = -f / slope if slope > 0 else (1.0 if f < 0 else -1.0)
-            step = max(-5.0, min(5.0, step))
-            s_new = s + step
+            h = 1e-6 if s + 1e-6 <= hi_s else -1e-6
+            slope = float(res.x @ (self.mu(s + h, T) - mu)) / h
+            step = -f / slope if slope > 0 else (2.0 if f < 0 else -2.0)
+            s_new = s + max(-5.0, min(5.0, step))
             if lo is not None and hi is not None and not (lo < s_new < hi):
                 s_new = 0.5 * (lo + hi)
             s_new = min(max(s_new, lo_s), hi_s)
-            if abs(s_new - s) < 1e-11 or abs(f) < 1e-9:
-                last = (s_new if abs(f) >= 1e-9 else s, res)
-                break
-            if s_new in (lo_s, hi_s) and s in (lo_s, hi_s):
+            if s_new == s and s in (lo_s, hi_s):
                 return None  # no root inside the searched range
+            done = abs(s_new - s) < 1e-12
             s = s_new
-        if last is None:
+            if done:
+                res = self.df(phase, self.mu(s, T), T, y_part)
+                break
+        else:
             return None
-        s_root, res = last
-        res = self.df(phase, self.mu(s_root, T), T, res.y)
         if abs(res.value) > DF_TOL or not res.converged:
             return None
-        return s_root, res
+        return s, res
 
     # ---------------------------------------------------------------- checks and full solves
-    def finish(self, T: float, s: float, partner_res: Mapping[str, object]) -> BoundaryPoint:
+    def finish(self, T: float, s: float, partner_res: Mapping[str, object],
+               prev_hints: Mapping[str, np.ndarray] | None = None) -> BoundaryPoint:
         """Check every candidate at the boundary s and build the point."""
         mu = self.mu(s, T)
-        hints = {p: r.y for p, r in partner_res.items()}
+        hints = dict(prev_hints or {})
+        hints.update({p: r.y for p, r in partner_res.items()})
         dfs = self.all_df(mu, T, hints)
         partners = tuple(sorted(p for p, (v, _, _) in dfs.items() if abs(v) <= DF_TOL))
         others = [v for p, (v, _, _) in dfs.items() if p not in partners]
         max_other = max(others) if others else -math.inf
-        partner_y = {p: dfs[p][1] for p in partners}
+        partner_y = {p: y for p, (_, y, _) in dfs.items()}
         if not partners:
             return BoundaryPoint(T, s, (), mu, "failed", "no partner at zero driving force", partner_y, max_other)
         if max_other > DF_TOL:
@@ -284,14 +295,19 @@ class _Engine:
             hi, partner = s, first
         return self._null(T, "failed", "no consistent first crossing found")
 
-    def warm(self, T: float, prev: BoundaryPoint) -> BoundaryPoint:
-        """Solve at T starting from the point at the previous temperature; None-like point on failure."""
+    def warm(self, T: float, prev: BoundaryPoint, before: BoundaryPoint | None = None) -> BoundaryPoint:
+        """Solve at T starting from the previous point(s) of the line; a cold solve where that fails."""
         partner = prev.partners[0]
-        sol = self.solve_partner(partner, T, prev.s, prev.partner_y.get(partner))
+        s0 = prev.s
+        if before is not None and before.valid and before.partners == prev.partners and before.T != prev.T:
+            # ln y is close to linear in 1/T along one partner (Arrhenius): extrapolate
+            slope = (prev.s - before.s) / (1.0 / prev.T - 1.0 / before.T)
+            s0 = prev.s + slope * (1.0 / T - 1.0 / prev.T)
+        sol = self.solve_partner(partner, T, s0, prev.partner_y.get(partner))
         if sol is None:
             return self.cold(T)
         s, res = sol
-        point = self.finish(T, s, {partner: res})
+        point = self.finish(T, s, {partner: res}, prev.partner_y)
         if point.converged:
             return point
         return self.cold(T)
@@ -404,12 +420,13 @@ def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures
     points: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
     prev: BoundaryPoint | None = None
+    before: BoundaryPoint | None = None
     for k in order:
         Tk = float(T[k])
         try:
             if hooks is not None:
                 hooks(Tk)
-            point = engine.warm(Tk, prev) if prev is not None and prev.valid else engine.cold(Tk)
+            point = engine.warm(Tk, prev, before) if prev is not None and prev.valid else engine.cold(Tk)
         except (ArithmeticError, ValueError, np.linalg.LinAlgError, RuntimeError) as exc:
             point = BoundaryPoint(Tk, float("nan"), (), np.full(len(system.elements), np.nan), "failed",
                                   f"solver failed: {exc}")
@@ -420,9 +437,9 @@ def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures
                 changes.append(engine.locate_change(prev, point))
         points[k] = point
         if point.valid:
-            prev = point
+            prev, before = point, prev
         elif point.status != "failed":
-            prev = None  # the line is broken: start the next point from nothing
+            prev = before = None  # the line is broken: start the next point from nothing
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
                       np.asarray(system.molar_masses), tuple(candidates), system.phases[host.phase].moles)
 

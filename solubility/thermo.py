@@ -74,6 +74,25 @@ class PhaseFunctions:
     moles: np.ndarray  # (n_el, ny): moles of each element per formula unit = moles @ y (linear in y)
     samples: np.ndarray = field(repr=False)  # (n_pts, ny) sample constitutions for screening
     sample_x: np.ndarray = field(repr=False)  # (n_pts, n_el) mole fractions of the samples
+    groups: tuple[np.ndarray, ...] = field(default=(), repr=False)  # variable indices of each sublattice
+    tangent: np.ndarray | None = field(default=None, repr=False)  # constant part of the tangent-plane matrix
+    _bases: dict = field(default_factory=dict, repr=False)  # pivot choice -> reduced basis
+
+    def reduced_basis(self, y: np.ndarray) -> np.ndarray:
+        """Columns e_j - e_pivot for each non-pivot variable j (pivot: the largest fraction of its sublattice)."""
+        pivots = tuple(int(idx[np.argmax(y[idx])]) for idx in self.groups if idx.size > 1)
+        Z = self._bases.get(pivots)
+        if Z is None:
+            cols = []
+            for idx, pivot in zip((g for g in self.groups if g.size > 1), pivots, strict=True):
+                for j in idx:
+                    if j != pivot:
+                        col = np.zeros(self.ny)
+                        col[j], col[pivot] = 1.0, -1.0
+                        cols.append(col)
+            Z = np.array(cols).T if cols else np.zeros((self.ny, 0))
+            self._bases[pivots] = Z
+        return Z
 
     @property
     def ny(self) -> int:
@@ -153,6 +172,10 @@ class ThermoSystem:
         with np.errstate(invalid="ignore", divide="ignore"):
             sx = sx / sx.sum(axis=1, keepdims=True)
         keep = np.all(np.isfinite(sx), axis=1)
+        n_el, ns = moles.shape[0], int(sublattice_of.max()) + 1
+        tangent = np.zeros((ny + 1, n_el + ns))
+        tangent[:ny, :n_el] = moles.T
+        tangent[np.arange(ny), n_el + sublattice_of] = 1.0
         return PhaseFunctions(
             name=name,
             record=record,
@@ -162,6 +185,8 @@ class ThermoSystem:
             moles=moles,
             samples=samples[keep],
             sample_x=sx[keep],
+            groups=tuple(np.flatnonzero(sublattice_of == k) for k in range(ns)),
+            tangent=tangent,
         )
 
     def _dof(self, y: np.ndarray, T: float) -> np.ndarray:
@@ -214,13 +239,17 @@ class ThermoSystem:
             means the phase has internal degrees of freedom that the composition does not fix.
         """
         pf = self.phases[phase]
-        g, grad, _ = self.gibbs_derivatives(phase, y, T)
-        n_el, ny, ns = len(self.elements), pf.ny, pf.n_sublattices
-        mat = np.zeros((ny + 1, n_el + ns))
-        mat[:ny, :n_el] = pf.moles.T
-        mat[np.arange(ny), n_el + pf.sublattice_of] = 1.0
+        dof = self._dof(y, T)
+        out = np.zeros(1)
+        grad = np.zeros(dof.size)
+        pf.record.formulaobj(out, dof)
+        pf.record.formulagrad(grad, dof)
+        n_el, ny = len(self.elements), pf.ny
+        mat = pf.tangent.copy()
         mat[ny, :n_el] = pf.moles @ y
-        rhs = np.concatenate((grad, [g]))
+        rhs = np.empty(ny + 1)
+        rhs[:ny] = grad[3:]
+        rhs[ny] = out[0]
         if mat.shape[0] == mat.shape[1]:
             try:
                 sol = np.linalg.solve(mat, rhs)
@@ -274,13 +303,10 @@ class ThermoSystem:
             phi = (float(mu_n @ y) - g) / n
             gphi = (mu_n - grad - phi * dn) / n
             hphi = (-hess - np.outer(gphi, dn) - np.outer(dn, gphi)) / n
-            Z = _reduced_basis(y, pf.sublattice_of, pf.n_sublattices)
+            Z = pf.reduced_basis(y)
             rg = Z.T @ gphi
             rh = Z.T @ hphi @ Z
-            # ascent step: solve rh d = -rg with rh negative definite; shift the spectrum where it is not
-            w, V = np.linalg.eigh(rh)
-            shift = max(0.0, float(w.max()) + 1e-8 * max(1.0, float(np.abs(w).max())))
-            d = -V @ ((V.T @ rg) / (w - shift))
+            d, shift = _ascent_step(rg, rh)
             step = Z @ d
             alpha = _fraction_to_boundary(y, step)
             if (
@@ -343,21 +369,24 @@ def _normalise(y: np.ndarray, sublattice_of: np.ndarray, ns: int) -> np.ndarray:
     return y / sums[sublattice_of]
 
 
-def _reduced_basis(y: np.ndarray, sublattice_of: np.ndarray, ns: int) -> np.ndarray:
-    """Columns e_j - e_pivot for every non-pivot variable j (pivot: the largest fraction on its sublattice)."""
-    cols = []
-    for s in range(ns):
-        idx = np.flatnonzero(sublattice_of == s)
-        if idx.size < 2:
-            continue
-        pivot = idx[np.argmax(y[idx])]
-        for j in idx:
-            if j != pivot:
-                col = np.zeros(y.size)
-                col[j] = 1.0
-                col[pivot] = -1.0
-                cols.append(col)
-    return np.array(cols).T if cols else np.zeros((y.size, 0))
+def _ascent_step(rg: np.ndarray, rh: np.ndarray) -> tuple[np.ndarray, float]:
+    """Newton ascent step d solving rh d = -rg; where rh is not negative definite its spectrum is shifted.
+
+    Returns the step and the shift applied (0 for a plain Newton step).
+    """
+    if rg.size == 1:
+        h = float(rh[0, 0])
+        if h < 0:
+            return np.array([-rg[0] / h]), 0.0
+        shift = h + 1e-8 * max(1.0, abs(h))
+        return np.array([-rg[0] / (h - shift)]), shift
+    try:
+        L = np.linalg.cholesky(-rh)
+        return np.linalg.solve(L.T, np.linalg.solve(L, rg)), 0.0
+    except np.linalg.LinAlgError:
+        w, V = np.linalg.eigh(rh)
+        shift = float(w.max()) + 1e-8 * max(1.0, float(np.abs(w).max()))
+        return -V @ ((V.T @ rg) / (w - shift)), shift
 
 
 def _fraction_to_boundary(y: np.ndarray, step: np.ndarray, keep: float = 1e-3) -> float:
