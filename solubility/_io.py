@@ -62,6 +62,9 @@ def atomic_write(path: str | os.PathLike, write: Callable[[Path], None]) -> Path
     fd, tmp_name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=p.parent if str(p.parent) else ".")
     os.close(fd)
     tmp = Path(tmp_name)
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; a result file gets the usual permissions
     try:
         write(tmp)
         with open(tmp, "rb+") as fh:

@@ -141,11 +141,13 @@ def _versions() -> dict[str, str]:
     }
 
 
-def _composition(line, point) -> tuple[float, float, float]:
-    """(x, w, y) of the solute in the host at a boundary point."""
+def _composition(line, s: float) -> tuple[float, float, float]:
+    """(x, w, y) of the solute in the host at ln(y_solute) = s."""
+    if not math.isfinite(s):
+        return math.nan, math.nan, math.nan
     host = line.host
     pf_moles = line.host_moles
-    y = host.y(point.s)
+    y = host.y(s)
     n = pf_moles @ y
     x = n / n.sum()
     k = line.elements.index(host.solute)
@@ -162,7 +164,8 @@ def build_dataset(line, job):
     X, W, Y = (np.full(n, np.nan) for _ in range(3))
     for i, p in enumerate(pts):
         if p.valid:
-            X[i], W[i], Y[i] = _composition(line, p)
+            X[i], W[i], Y[i] = _composition(line, p.s)
+    change_xw = np.array([_composition(line, c.s)[:2] for c in line.changes]).reshape(-1, 2)
     T = np.array([p.T for p in pts])
     mu = np.array([p.mu for p in pts]).reshape(n, len(line.elements))
     host, solute = job.phase, job.solute
@@ -186,6 +189,10 @@ def build_dataset(line, job):
                      {"units": "J/mol", "long_name": "largest driving force of another candidate phase"}),
         "partner_change_T": ("change", np.array([c.T for c in line.changes], dtype=float),
                              {"units": "K", "long_name": "temperature where the partner changes"}),
+        "partner_change_X": ("change", change_xw[:, 0],
+                             {"units": "1", "long_name": f"mole fraction of {solute} in {host} at the change"}),
+        "partner_change_W": ("change", change_xw[:, 1],
+                             {"units": "1", "long_name": f"mass fraction of {solute} in {host} at the change"}),
         "partner_below": ("change", np.array(["+".join(c.below) for c in line.changes], dtype=object),
                           {"units": "", "long_name": "partner below the change"}),
         "partner_above": ("change", np.array(["+".join(c.above) for c in line.changes], dtype=object),
@@ -221,6 +228,11 @@ def _nan_to_none(values) -> list:
     return [None if (isinstance(v, float) and not math.isfinite(v)) else v for v in values]
 
 
+def _finite(v) -> float | None:
+    v = float(v)
+    return v if math.isfinite(v) else None
+
+
 def solvus_json(ds) -> dict:
     """The JSON contract of ``solubility solvus --json`` for one solvus Dataset."""
     ok = ds["status"].values == "ok"
@@ -235,9 +247,10 @@ def solvus_json(ds) -> dict:
         "status": [str(v) for v in ds["status"].values],
         "reason": [str(v) for v in ds["reason"].values],
         "partner_changes": [
-            {"temperature_K": float(t), "below": str(b).split("+"), "above": str(a).split("+")}
-            for t, b, a in zip(ds["partner_change_T"].values, ds["partner_below"].values,
-                               ds["partner_above"].values, strict=True)
+            {"temperature_K": _finite(t), "mole_fraction": _finite(x), "below": str(b).split("+"),
+             "above": str(a).split("+")}
+            for t, x, b, a in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
+                                  ds["partner_below"].values, ds["partner_above"].values, strict=True)
         ],
         "database": ds.attrs.get("database"),
         "database_sha256": ds.attrs.get("database_sha256"),

@@ -39,6 +39,14 @@ Y_MIN = 1e-30
 Y_MAX = 1.0 - 1e-9
 #: temperature tolerance for locating a change of partner, K
 T_TOL = 0.005
+#: ln(y) grid of the cold scan: one point a decade below y = 1e-6 (a single-phase field that narrow at such
+#: dilution is not expected), eight a decade above it, and a linear run up to a full sublattice. A host field
+#: narrower than a factor of 1.33 in solute content above y = 1e-6 can be missed by a cold start.
+_SCAN = np.log(np.unique(np.concatenate((
+    np.logspace(math.log10(Y_MIN), -6, 25),
+    np.logspace(-6, math.log10(0.5), 47),
+    np.linspace(0.5, Y_MAX, 9),
+))))
 
 
 @dataclass(frozen=True)
@@ -127,6 +135,7 @@ class PartnerChange:
     T: float  # K, to T_TOL
     below: tuple[str, ...]
     above: tuple[str, ...]
+    s: float = float("nan")  # ln(y_solute) of the host at T (the host's corner of the three-phase triangle)
 
 
 @dataclass(frozen=True)
@@ -257,28 +266,45 @@ class _Engine:
         return dfs[phase][0], phase, dfs
 
     def cold(self, T: float) -> BoundaryPoint:
-        """Solve at T from nothing: scan the host's solute content, then solve the first crossing."""
-        grid = np.concatenate((np.log(np.logspace(math.log10(Y_MIN), math.log10(0.5), 31)),
-                               np.log(np.linspace(0.5, Y_MAX, 8)[1:])))
-        values = []
-        for s in grid:
-            f, phase, _ = self.max_df(float(s), T)
-            values.append((f, phase))
+        """Solve at T from nothing: scan the host's solute content, then solve the first crossing.
+
+        F(s) = max over other phases of the driving force against the host at ln(y) = s; the host is stable
+        where F < 0. If no scan point is stable, F is minimised around the least unstable point before the
+        host is declared unstable, so a single-phase field narrower than the scan spacing is still found.
+        """
+        grid = [float(g) for g in _SCAN]
+        values = [self.max_df(s, T)[:2] for s in grid]
         stable = [f < 0 for f, _ in values]
         if not any(stable):
-            f, phase = max(values, key=lambda t: t[0])
-            return self._null(T, "host_unstable", f"host phase {self.host.phase} is not stable at any {self.host.solute} content "
-                                 f"({values[0][1]} is more stable)")
-        i0 = stable.index(True)
-        i = i0
+            found = self._narrow_field(T, grid, values)
+            if found is None:
+                least = min(range(len(grid)), key=lambda k: values[k][0])
+                return self._null(T, "host_unstable",
+                                  f"host phase {self.host.phase} is not stable at any {self.host.solute} content "
+                                  f"({values[least][1]} is more stable)")
+            k, s_stable = found
+            grid.insert(k + 1, s_stable)
+            values.insert(k + 1, self.max_df(s_stable, T)[:2])
+            stable = [f < 0 for f, _ in values]
+        i = stable.index(True)
         while i + 1 < len(stable) and stable[i + 1]:
             i += 1
         if i + 1 == len(stable):
-            return self._null(T, "no_partner", f"no partner phase: {self.host.phase} takes {self.host.solute} up to a full "
-                                 "interstitial sublattice")
-        lo, hi = float(grid[i]), float(grid[i + 1])
-        partner = values[i + 1][1]
-        return self._crossing(T, lo, hi, partner)
+            return self._null(T, "no_partner", f"no partner phase: {self.host.phase} takes {self.host.solute} "
+                                               "up to a full interstitial sublattice")
+        return self._crossing(T, grid[i], grid[i + 1], values[i + 1][1])
+
+    def _narrow_field(self, T: float, grid: list[float], values: list) -> tuple[int, float] | None:
+        """A stable point between scan points near the least unstable one, or None."""
+        from scipy.optimize import minimize_scalar
+
+        order = sorted(range(1, len(grid) - 1), key=lambda k: values[k][0])[:3]
+        for k in order:
+            res = minimize_scalar(lambda s: self.max_df(s, T)[0], bounds=(grid[k - 1], grid[k + 1]),
+                                  method="bounded", options={"xatol": 1e-7})
+            if res.fun < 0:
+                return (k if res.x > grid[k] else k - 1), float(res.x)
+        return None
 
     def _crossing(self, T: float, lo: float, hi: float, partner: str) -> BoundaryPoint:
         """The first crossing in (lo, hi), where max DF goes from negative to positive."""
@@ -340,7 +366,9 @@ class _Engine:
                 T_hi = mid
             else:
                 T_lo = mid
-        return PartnerChange(round(0.5 * (T_lo + T_hi), 3), a.partners, b.partners)
+        T_star = 0.5 * (T_lo + T_hi)
+        sol = self.solve_partner(beta, T_star, s_ref, y_beta)
+        return PartnerChange(round(T_star, 3), a.partners, b.partners, sol[0] if sol else float("nan"))
 
 
 # ---------------------------------------------------------------------- input handling
