@@ -47,12 +47,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
-        try:  # TEMPORARY while the command modules are being written; removed before release
-            module = importlib.import_module(f".commands.{name}", __package__)
-        except ModuleNotFoundError as exc:
-            if exc.name != f"{__package__}.commands.{name}":
-                raise
-            continue
+        module = importlib.import_module(f".commands.{name}", __package__)
         doc = (module.__doc__ or "").strip()
         summary = doc.splitlines()[0] if doc else name
         cmd = sub.add_parser(

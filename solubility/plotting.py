@@ -147,7 +147,7 @@ def apparent_enthalpy(ds, T_range: tuple[float, float] | None = None) -> dict:
     else:
         lo, hi = sorted(float(t) for t in T_range)
         T = ds["T"].values
-        idx = np.flatnonzero((T >= lo) & (T <= hi) & (ds["status"].values == "ok"))
+        idx = np.flatnonzero((lo <= T) & (hi >= T) & (ds["status"].values == "ok"))
         partners = sorted({str(p) for p in ds["partner"].values[idx]})
         partner = "+".join(partners)
     if idx.size < 2:

@@ -26,7 +26,6 @@ from __future__ import annotations
 import json
 import math
 import re
-from collections.abc import Sequence
 from datetime import UTC, datetime
 from pathlib import Path
 

@@ -95,6 +95,11 @@ class PhaseFunctions:
         return Z
 
     @property
+    def atoms(self) -> np.ndarray:
+        """(ny,) atoms per formula unit contributed by each site fraction (n(y) = atoms @ y)."""
+        return self.moles.sum(axis=0)
+
+    @property
     def ny(self) -> int:
         return len(self.species)
 
@@ -161,12 +166,13 @@ class ThermoSystem:
         species = tuple(str(var.species.name) for var in variables)
         sublattice_of = np.array([int(var.sublattice_index) for var in variables], dtype=int)
         ny = len(variables)
-        moles = np.zeros((len(self._prf.nonvacant_elements), ny))
-        dof = self._dof(np.full(ny, 0.5), 1000.0)
-        grad = np.zeros(dof.size)
-        for i in range(moles.shape[0]):
-            record.formulamole_grad(grad, dof, i)
-            moles[i] = grad[3:]
+        elements = list(self._prf.nonvacant_elements)
+        moles = np.zeros((len(elements), ny))
+        for j, var in enumerate(variables):  # site ratio times the species' stoichiometry
+            ratio = float(model.site_ratios[int(var.sublattice_index)])
+            for el, count in var.species.constituents.items():
+                if el in elements:
+                    moles[elements.index(el), j] += ratio * float(count)
         samples = _sample_constitutions(sublattice_of, ny)
         sx = samples @ moles.T
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -206,6 +212,7 @@ class ThermoSystem:
         out = np.zeros(1)
         grad = np.zeros(dof.size)
         hess = np.zeros((dof.size, dof.size))
+        # the formula-unit functions pycalphad's own solver compiles and uses
         pf.record.formulaobj(out, dof)
         pf.record.formulagrad(grad, dof)
         pf.record.formulahess(hess, dof)
@@ -244,12 +251,14 @@ class ThermoSystem:
         grad = np.zeros(dof.size)
         pf.record.formulaobj(out, dof)
         pf.record.formulagrad(grad, dof)
+        g_f = float(out[0])
+        grad_f = grad[3:]
         n_el, ny = len(self.elements), pf.ny
         mat = pf.tangent.copy()
         mat[ny, :n_el] = pf.moles @ y
         rhs = np.empty(ny + 1)
-        rhs[:ny] = grad[3:]
-        rhs[ny] = out[0]
+        rhs[:ny] = grad_f
+        rhs[ny] = g_f
         if mat.shape[0] == mat.shape[1]:
             try:
                 sol = np.linalg.solve(mat, rhs)

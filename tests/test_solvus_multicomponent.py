@@ -17,11 +17,9 @@ fixed overall composition instead would give a different, wrong number (checked 
 
 from __future__ import annotations
 
-import copy
-
 import numpy as np
 import pytest
-from pycalphad import equilibrium
+from pycalphad import Database, equilibrium
 from pycalphad import variables as v
 from pycalphad.variables import Species
 
@@ -35,7 +33,9 @@ PHASES = ["BCC_A2", "CEMENTITE_D011"]
 
 @pytest.fixture(scope="module")
 def ternary():
-    db = copy.deepcopy(load_database("fe-c").db)
+    # a fresh parse: pycalphad's Database deepcopy shares phases with the original, so never mutate a copy of
+    # the cached bundled database
+    db = Database(str(load_database("fe-c").path))
     db.elements.add("M")
     db.species.add(Species("M"))
     db.refstates["M"] = {"phase": "BCC_A2", "mass": 50.0, "H298": 0.0, "S298": 0.0}  # invented
