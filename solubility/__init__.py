@@ -12,7 +12,8 @@ from typing import Any
 
 __version__ = "0.1.0"
 
-# public name -> module that defines it
+# public name -> module that defines it (no module is named like a public function: importing a submodule
+# binds its name on the package, which would shadow the function)
 _EXPORTS = {
     "Structure": "structure",
     "builtin_structure": "structure",
@@ -25,7 +26,7 @@ _EXPORTS = {
     "load_database": "database",
     "audit_database": "database",
     "bundled_databases": "database",
-    "solvus": "solvus",
+    "solvus": "boundary",
     "sweep": "sweep",
     "read_job": "sweep",
     "Case": "sweep",

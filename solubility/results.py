@@ -10,7 +10,7 @@ W           1        mass fraction of the solute in the host phase
 PPM         ppm      parts per million by mass (mg/kg)
 Y           1        site fraction of the solute on the host's interstitial sublattice
 partner     -        phases at zero amount on the boundary, joined by "+"; "" when none
-status      -        ok, host_unstable, no_partner or failed
+status      -        ok, host_unstable, below_limit, no_partner or failed
 converged   -        False only where the calculation failed (status "failed")
 reason      -        why a point has no number; "" otherwise
 MU          J/mol    chemical potentials of the elements at the boundary
@@ -155,7 +155,7 @@ def _composition(line, s: float) -> tuple[float, float, float]:
 
 
 def build_dataset(line, job):
-    """The solvus Dataset from a `solubility.solvus.SolvusLine` and its `solubility.setup.SolvusJob`."""
+    """The solvus Dataset from a `solubility.boundary.SolvusLine` and its `solubility.setup.SolvusJob`."""
     import xarray as xr
 
     pts = line.points
@@ -178,7 +178,7 @@ def build_dataset(line, job):
         "partner": ("T", np.array(["+".join(p.partners) for p in pts], dtype=object),
                     {"units": "", "long_name": "coexisting phase(s) at zero amount"}),
         "status": ("T", np.array([p.status for p in pts], dtype=object),
-                   {"units": "", "long_name": "ok, host_unstable, no_partner or failed"}),
+                   {"units": "", "long_name": "ok, host_unstable, below_limit, no_partner or failed"}),
         "converged": ("T", np.array([p.converged for p in pts], dtype=bool),
                       {"units": "", "long_name": "calculation reached a definite answer"}),
         "reason": ("T", np.array([p.reason for p in pts], dtype=object),

@@ -119,7 +119,7 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
         Any bad value, named in a one-line message.
     """
     from .database import check_elements, check_phases, load_database
-    from .solvus import _host_model
+    from .boundary import _host_model
     from .thermo import filter_candidate_phases, get_system
 
     ldb = load_database(database)

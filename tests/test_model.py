@@ -16,6 +16,7 @@ import warnings
 
 import numpy as np
 import pytest
+from ideal_systems import IDEAL_CASES, ideal_db
 
 from solubility.errors import InputError, StructureError
 from solubility.model import (
@@ -230,35 +231,7 @@ def test_dilute_limits_and_errors():
 
 
 # ---- against pycalphad's equilibrium -----------------------------------------------------------------
-_IDEAL_CASES = [
-    # (c, A, B, p, q, partner A, partner B); invented ideal data (labelled: not an assessment)
-    pytest.param(3.0, 40000.0, 10.0, 0.0, 1.0, 0.0, 0.0, id="bcc-like 1:3, pure-solute partner (reference)"),
-    pytest.param(
-        1.0, 30000.0, 0.0, 0.0, 1.0, 2000.0, -1.0, id="fcc-like 1:1, pure-solute partner off reference"
-    ),
-    pytest.param(3.0, 60000.0, 0.0, 3.0, 1.0, -15000.0, 0.0, id="1:3 against a stoichiometric M3X"),
-    pytest.param(0.5, 10000.0, 5.0, 2.0, 1.0, -4000.0, -1.0, id="hcp-like 1:0.5 against M2X"),
-]
-
-
-def _ideal_db(c, A, B, p, q, GA, GB):
-    from solubility.database import _parse_text
-
-    m = SublatticeModel.from_ratios("SS", "FE", "C", a=1.0, c=c)
-    # invented reference data (mass of FE and C from the bundled fe-c ELEMENT lines; H298/S298 unused here)
-    els = {"FE": ("SS", 55.847, 0.0, 0.0), "C": ("PARTNER", 12.011, 0.0, 0.0)}
-    text = m.tdb_block({"G(SS,FE:VA;0)": "0", "G(SS,FE:C;0)": f"{A}+{B}*T"}, elements=els)
-    if p == 0:
-        text += f" PHASE PARTNER % 1 {q} !\n CONSTITUENT PARTNER :C: !\n"
-        text += f" PARAMETER G(PARTNER,C;0) 298.15 {GA / q}+{GB / q}*T; 6000 N !\n"
-    else:
-        text += f" PHASE PARTNER % 2 {p} {q} !\n CONSTITUENT PARTNER :FE:C: !\n"
-        text += f" PARAMETER G(PARTNER,FE:C;0) 298.15 {GA}+{GB}*T; 6000 N !\n"
-    db, _ = _parse_text(text, "ideal test system")
-    return db
-
-
-@pytest.mark.parametrize(("c", "A", "B", "p", "q", "GA", "GB"), _IDEAL_CASES)
+@pytest.mark.parametrize(("c", "A", "B", "p", "q", "GA", "GB"), IDEAL_CASES)
 def test_dilute_closed_form_matches_pycalphad_equilibrium(c, A, B, p, q, GA, GB):
     from pycalphad import equilibrium
     from pycalphad import variables as v
@@ -267,7 +240,7 @@ def test_dilute_closed_form_matches_pycalphad_equilibrium(c, A, B, p, q, GA, GB)
     ref = dilute_solubility(T, A, B, a=1.0, c=c, partner_host=p, partner_solute=q, partner_A=GA, partner_B=GB)
     assert 1e-3 < ref.y < 0.5  # the invented data put y where relative errors are meaningful
     x_overall = 0.5 * (ref.x + q / (p + q))  # inside the two-phase field
-    db = _ideal_db(c, A, B, p, q, GA, GB)
+    db = ideal_db(c, A, B, p, q, GA, GB)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # pycalphad's own numerical warnings are not under test here
         eq = equilibrium(

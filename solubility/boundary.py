@@ -99,7 +99,8 @@ class BoundaryPoint:
         Chemical potentials of the elements at the boundary, J/mol (elements order of the system).
     status
         "ok" (a boundary, solved and checked), "host_unstable" (the host is not stable at any solute content),
-        "no_partner" (no phase limits the solubility) or "failed" (the solve or its check failed).
+        "below_limit" (the solubility is below the searched site fraction Y_MIN), "no_partner" (no phase limits
+        the solubility) or "failed" (the solve or its check failed).
     reason
         Why there is no number (or why it is not converged); "" otherwise.
     partner_y
@@ -273,8 +274,14 @@ class _Engine:
         host is declared unstable, so a single-phase field narrower than the scan spacing is still found.
         """
         grid = [float(g) for g in _SCAN]
-        values = [self.max_df(s, T)[:2] for s in grid]
+        scans = [self.max_df(s, T) for s in grid]
+        values = [v[:2] for v in scans]
         stable = [f < 0 for f, _ in values]
+        if not stable[0] and self._solute_rich(scans[0]):
+            # already at the smallest content searched a phase richer in solute beats the host: the boundary
+            # lies below Y_MIN (a higher stable run, on the far side of that phase, is another field)
+            return self._null(T, "below_limit", f"solubility of {self.host.solute} in {self.host.phase} is below "
+                                                f"the searched limit (site fraction {Y_MIN:g})")
         if not any(stable):
             found = self._narrow_field(T, grid, values)
             if found is None:
@@ -293,6 +300,13 @@ class _Engine:
             return self._null(T, "no_partner", f"no partner phase: {self.host.phase} takes {self.host.solute} "
                                                "up to a full interstitial sublattice")
         return self._crossing(T, grid[i], grid[i + 1], values[i + 1][1])
+
+    def _solute_rich(self, scan) -> bool:
+        """Whether the most stable other phase of a scan point holds more solute than the host there."""
+        _, phase, dfs = scan
+        k = self.system.elements.index(self.host.solute)
+        x_phase = (self.system.phases[phase].moles @ dfs[phase][1])
+        return bool(x_phase[k] / x_phase.sum() > 1e-6)
 
     def _narrow_field(self, T: float, grid: list[float], values: list) -> tuple[int, float] | None:
         """A stable point between scan points near the least unstable one, or None."""

@@ -1,0 +1,140 @@
+"""Run the solvus cases of a TOML job file in parallel, resumably, into one table.
+
+JOB.toml holds [[case]] tables (name, database, phase, solute, temperatures "START:STOP:STEP" or a list in K,
+and optionally exclude, fix, balance, pressure), an optional [defaults] table and [[product]] tables whose
+[product.vary] lists are expanded as a cartesian product. The whole file is checked before any work.
+
+Cases run on local worker processes (--workers, default: one per CPU) or on a dask.distributed cluster
+(--scheduler ADDRESS). With --store DIR each finished case is written to DIR at once; after an interruption,
+the same command with --resume runs only the cases not yet finished. A progress bar is shown on standard error
+when it is a terminal (not with --quiet), and a summary at the end. Exit status: 0 when every case succeeded,
+1 when some failed (their results are NaN with the message), 2 on an error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+
+
+def _workers(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} must be 0 (run in this process) or more")
+    return value
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options of ``solubility sweep``."""
+    parser.add_argument("job", metavar="JOB.toml", help="TOML job file")
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument(
+        "--workers", type=_workers, metavar="N", help="local worker processes (default: one per CPU; 0: none)"
+    )
+    where.add_argument("--scheduler", metavar="ADDRESS", help="run on the dask scheduler at ADDRESS")
+    parser.add_argument("--store", metavar="DIR", help="write every finished case to folder DIR at once")
+    parser.add_argument("--resume", action="store_true", help="keep finished cases of --store, run the rest")
+    parser.add_argument(
+        "--overwrite", action="store_true", help="replace existing output files and start --store afresh"
+    )
+    parser.add_argument("--strict", action="store_true", help="stop at the first failed case (exit status 2)")
+    parser.add_argument("--netcdf", metavar="F", help="write the sweep Dataset to NetCDF file F")
+    parser.add_argument("--csv", metavar="F", help="write one row per case and temperature to CSV file F")
+    parser.add_argument("--json", action="store_true", help='print one JSON object: {"cases": [...]}')
+    parser.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+
+
+def _table(ds) -> str:
+    """One line per case: name, status, points, converged points, partner phases, error."""
+    rows = [("case", "status", "points", "converged", "partners", "error")]
+    for i, name in enumerate(ds["case"].values.tolist()):
+        asked = ds["requested"].values[i]
+        converged = int(ds["converged"].values[i][asked].sum()) if "converged" in ds else 0
+        has_partner = "partner" in ds
+        partners = sorted({p for p in ds["partner"].values[i][asked].tolist() if p}) if has_partner else []
+        rows.append(
+            (name, str(ds["case_status"].values[i]), str(int(asked.sum())), str(converged),
+             ",".join(partners) or "-", str(ds["case_error"].values[i]) or "-")
+        )  # fmt: skip
+    widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]) - 1)]
+    return "\n".join(
+        "  ".join([*(c.ljust(w) for c, w in zip(r[:-1], widths, strict=True)), r[-1]]).rstrip() for r in rows
+    )
+
+
+def _summary(ds, seconds: float, resumed: int) -> str:
+    status = ds["case_status"].values.tolist()
+    ok = status.count("ok")
+    text = f"sweep: {len(status)} cases, {ok} ok, {len(status) - ok} failed"
+    if resumed:
+        text += f" ({resumed} from the store)"
+    return f"{text}, {seconds:.1f} s"
+
+
+def run(args: argparse.Namespace) -> int:
+    """Read the job, run the sweep, write the outputs; 1 if a case failed."""
+    from .._io import check_output_path
+    from ..errors import InputError
+    from ..sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
+    from ._common import emit_json
+
+    if args.resume and not args.store:
+        raise InputError("--resume needs --store DIR (the folder of the run to resume)")
+    outputs = [(p, w) for p, w in ((args.netcdf, write_netcdf), (args.csv, write_csv)) if p]
+    for path, _ in outputs:
+        check_output_path(path, overwrite=args.overwrite)
+    cases = read_job(args.job)
+    started = time.perf_counter()
+    counter = _Counter(show_bar=not args.quiet and sys.stderr.isatty())
+    try:
+        ds = sweep(
+            cases,
+            workers=args.workers,
+            scheduler=args.scheduler,
+            store=args.store,
+            resume=args.resume,
+            progress=counter,
+            strict=args.strict,
+            overwrite=args.overwrite,
+        )
+    finally:
+        counter.close()
+    for path, write in outputs:
+        write(ds, path)
+    if args.json:
+        emit_json(sweep_json(ds))
+    else:
+        print(_table(ds))
+    if not args.quiet:
+        resumed = len(cases) - counter.ran
+        print(_summary(ds, time.perf_counter() - started, resumed), file=sys.stderr)
+    return 0 if all(s == "ok" for s in ds["case_status"].values.tolist()) else 1
+
+
+class _Counter:
+    """Progress callback: counts the cases run here and drives a tqdm bar on a terminal."""
+
+    def __init__(self, *, show_bar: bool) -> None:
+        self.ran = 0
+        self.bar = None
+        self.show_bar = show_bar
+
+    def __call__(self, done: int, total: int, case, status: str) -> None:
+        if case is None:  # the start: `done` cases come from the store
+            if self.show_bar:
+                from tqdm import tqdm
+
+                self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, desc="sweep")
+            return
+        self.ran += 1
+        if self.bar is not None:
+            self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
