@@ -23,13 +23,16 @@ _EXPORTS = {
     "find_sites": "sites",
     "misfit": "sites",
     "SublatticeModel": "model",
+    "dilute_solubility": "model",
+    "add_model": "database",
+    "AuditRow": "audit",
     "load_database": "database",
     "audit_database": "database",
     "bundled_databases": "database",
     "solvus": "boundary",
-    "sweep": "sweep",
-    "read_job": "sweep",
-    "Case": "sweep",
+    "sweep": "sweeps",
+    "read_job": "sweeps",
+    "Case": "sweeps",
 }
 
 __all__ = ["__version__", *sorted(_EXPORTS)]

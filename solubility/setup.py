@@ -100,6 +100,9 @@ def _host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance:
             raise InputError(f"balance element {balance} is also given in fix")
         return balance
     rest = [el for el in subst if el not in fix]
+    if not rest:
+        raise InputError(f"fix gives every element of the substitutional sublattice of {phase} "
+                         f"({', '.join(subst)}); leave one out as the balance, which takes the rest")
     if len(rest) != 1:
         raise InputError(
             f"host phase {phase} holds {', '.join(rest)} on its substitutional sublattice besides the fixed "
@@ -118,8 +121,8 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     InputError, DatabaseError
         Any bad value, named in a one-line message.
     """
-    from .database import check_elements, check_phases, load_database
     from .boundary import _host_model
+    from .database import check_elements, check_phases, load_database
     from .thermo import filter_candidate_phases, get_system
 
     ldb = load_database(database)
@@ -133,6 +136,9 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
         raise InputError("solute VA is the vacancy, not an element; give an interstitial element such as C")
     if isinstance(exclude, str):
         exclude = [exclude]
+    for p_name in exclude or ():
+        if not isinstance(p_name, str) or not p_name.strip():
+            raise InputError(f"excluded phase {p_name!r} is not a phase name")
     excluded = check_phases(ldb, [str(p).strip().upper() for p in exclude]) if exclude else ()
     if phase in excluded:
         raise InputError(f"host phase {phase} is also excluded")
