@@ -22,8 +22,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import InputError
-
 __all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus", "solvus_line"]
 
 #: a driving force within this of zero (J per mole of atoms) counts as zero (double precision noise of
@@ -385,60 +383,6 @@ class _Engine:
         return PartnerChange(round(T_star, 3), a.partners, b.partners, sol[0] if sol else float("nan"))
 
 
-# ---------------------------------------------------------------------- input handling
-def _host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str) -> HostModel:
-    pf = system.phases[phase]
-    sub_of = pf.sublattice_of
-    interstitial = [s for s in range(pf.n_sublattices)
-                    if "VA" in [pf.species[j] for j in np.flatnonzero(sub_of == s)]]
-    inter_with_solute = [s for s in interstitial
-                         if solute in [pf.species[j] for j in np.flatnonzero(sub_of == s)]]
-    if len(inter_with_solute) != 1:
-        raise InputError(
-            f"phase {phase} has no interstitial sublattice holding {solute} and VA"
-            if not inter_with_solute else
-            f"phase {phase} holds {solute} on {len(inter_with_solute)} sublattices; one is supported"
-        )
-    s_int = inter_with_solute[0]
-    idx_int = np.flatnonzero(sub_of == s_int)
-    extra = [pf.species[j] for j in idx_int if pf.species[j] not in (solute, "VA")]
-    if extra:
-        raise InputError(f"interstitial sublattice of {phase} also holds {extra}; only {solute} and VA are "
-                         "supported in the system")
-    base = np.zeros(pf.ny)
-    a = 0.0
-    u = dict(fix)
-    u[balance] = 1.0 - sum(fix.values())
-    for s in range(pf.n_sublattices):
-        if s == s_int:
-            continue
-        idx = np.flatnonzero(sub_of == s)
-        names = [pf.species[j] for j in idx]
-        if len(idx) == 1:
-            base[idx[0]] = 1.0
-            if names[0] not in u and names[0] != "VA":
-                raise InputError(f"sublattice {s} of {phase} holds only {names[0]}, which is not the balance "
-                                 f"element {balance} nor fixed")
-        else:
-            missing = [n for n in names if n not in u]
-            if missing:
-                raise InputError(f"sublattice {s} of {phase} holds {names}; give contents for {missing} "
-                                 "with fix=... or leave those elements out")
-            for j, n in zip(idx, names, strict=True):
-                base[j] = u[n]
-        a += pf.site_ratios[s]
-    return HostModel(phase, solute, base, int(idx_int[names_index(pf, idx_int, solute)]),
-                     int(idx_int[names_index(pf, idx_int, "VA")]), a, pf.site_ratios[s_int])
-
-
-def names_index(pf, idx: np.ndarray, name: str) -> int:
-    return [pf.species[j] for j in idx].index(name)
-
-
-def _sorted_order(temperatures: np.ndarray) -> np.ndarray:
-    return np.argsort(temperatures, kind="stable")
-
-
 def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures: Sequence[float],
                 *, hooks=None) -> SolvusLine:
     """Compute the solvus on a compiled system at each temperature (K).
@@ -458,7 +402,7 @@ def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures
     """
     engine = _Engine(system, host, candidates)
     T = np.asarray(temperatures, dtype=float)
-    order = _sorted_order(T)
+    order = np.argsort(T, kind="stable")
     points: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
     prev: BoundaryPoint | None = None

@@ -10,9 +10,11 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
+import numpy as np
+
 from .errors import InputError
 
-__all__ = ["SolvusJob", "prepare"]
+__all__ = ["SolvusJob", "host_model", "prepare"]
 
 INTERSTITIAL_HINT = ("B", "C", "H", "N", "O")
 
@@ -121,7 +123,6 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     InputError, DatabaseError
         Any bad value, named in a one-line message.
     """
-    from .boundary import _host_model
     from .database import check_elements, check_phases, load_database
     from .thermo import filter_candidate_phases, get_system
 
@@ -157,6 +158,51 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
                          f"{', '.join(excluded) or 'nothing'} is excluded")
     key = ldb.sha256 or f"memory:{id(ldb.db)}"
     system = get_system(ldb.db, key, elements, candidates, p)
-    host = _host_model(system, phase, solute, fixed, bal)
+    host = host_model(system, phase, solute, fixed, bal)
     return SolvusJob(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
                      tuple(candidates), system, host)
+
+
+def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str):
+    """The host's constitution as a function of ln(y_solute): a `solubility.boundary.HostModel`.
+
+    The interstitial sublattice is the one holding VA and the solute (nothing else may be on it among the
+    system's elements). Every other sublattice is fixed: one constituent at site fraction 1, or the
+    substitutional elements at their u-fractions (the balance takes 1 - sum(fix)), which for a single
+    substitutional sublattice are exactly its site fractions.
+
+    Raises
+    ------
+    InputError
+        The phase is not of the form (hosts)a(X,VA)c over the chosen elements.
+    """
+    from .boundary import HostModel
+
+    pf = system.phases[phase]
+    groups = [[int(j) for j in np.flatnonzero(pf.sublattice_of == k)] for k in range(pf.n_sublattices)]
+    names = [[pf.species[j] for j in g] for g in groups]
+    inter = [k for k, sp in enumerate(names) if "VA" in sp and solute in sp]
+    if len(inter) != 1:
+        raise InputError(f"phase {phase} has no interstitial sublattice holding {solute} and VA" if not inter
+                         else f"phase {phase} holds {solute} on {len(inter)} sublattices; one is supported")
+    k_int = inter[0]
+    extra = [n for n in names[k_int] if n not in (solute, "VA")]
+    if extra:
+        raise InputError(f"the interstitial sublattice of {phase} also holds {', '.join(extra)}; only {solute} "
+                         "and VA may share it among the chosen elements")
+    u = {**fix, balance: 1.0 - sum(fix.values())}
+    base = np.zeros(pf.ny)
+    a = 0.0
+    for k, (group, sp) in enumerate(zip(groups, names, strict=True)):
+        if k == k_int:
+            continue
+        missing = [n for n in sp if n not in u and len(sp) > 1]
+        if missing:
+            raise InputError(f"sublattice {k} of {phase} holds {', '.join(sp)}; give the contents of "
+                             f"{', '.join(missing)} with fix, or leave those elements out")
+        for j, n in zip(group, sp, strict=True):
+            base[j] = 1.0 if len(sp) == 1 else u[n]
+        a += pf.site_ratios[k]
+    solute_index = groups[k_int][names[k_int].index(solute)]
+    vacancy_index = groups[k_int][names[k_int].index("VA")]
+    return HostModel(phase, solute, base, solute_index, vacancy_index, a, pf.site_ratios[k_int])
