@@ -32,3 +32,18 @@ def test_solvus_matches_closed_form_from_dilute_to_concentrated(c, A, B, p, q, G
     np.testing.assert_allclose(ds.Y.values[inside], ref.y[inside], rtol=1e-6)
     np.testing.assert_allclose(ds.X.values[inside], ref.x[inside], rtol=1e-6)
     assert ref.y[inside].min() < 1e-12  # the check reaches the dilute end the issue asks for
+
+
+def test_apparent_enthalpy_of_an_ideal_dilute_solution():
+    # pure-solute partner, ideal (M)1(X,VA)3 with dG = A (B = 0): y/(1-y) = exp(-A/(3RT)), and in the dilute
+    # limit x = 3y/(1+3y) ~ 3y, so ln x = ln 3 - A/(3RT) and Q = -R dln(x)/d(1/T) = A/3 exactly as y -> 0
+    from solubility.plotting import apparent_enthalpy
+
+    A = 60000.0
+    db = ideal_db(3.0, A, 0.0, 0.0, 1.0, 0.0, 0.0)
+    ds = solubility.solvus(db, "SS", "C", "150:250:10")
+    assert float(ds.Y.max()) < 1e-4
+    fit = apparent_enthalpy(ds)
+    # the O(y) departure from the dilute form is below 1e-4 here; 1e-3 relative leaves room for it
+    assert fit["Q"] == pytest.approx(A / 3.0, rel=1e-3)
+    assert fit["partner"] == "PARTNER" and fit["points"] == 11
