@@ -21,17 +21,25 @@ hundreds of milliseconds to seconds (code generation); evaluating a phase afterw
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import itertools
 import threading
-from collections.abc import Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .errors import DatabaseError
 
-__all__ = ["DrivingForce", "PhaseFunctions", "ThermoSystem", "filter_candidate_phases", "get_system"]
+__all__ = [
+    "DrivingForce",
+    "PhaseFunctions",
+    "ThermoSystem",
+    "checked_expressions",
+    "filter_candidate_phases",
+    "get_system",
+]
 
 #: smallest site fraction used anywhere (pycalphad's own floor is 1e-14; we go below it on purpose)
 Y_FLOOR = 1e-300
@@ -446,6 +454,7 @@ def _sample_constitutions(sublattice_of: np.ndarray, ny: int, cap: int = 4000) -
 
 # ---------------------------------------------------------------------- per-process cache
 _CACHE: dict[tuple, ThermoSystem] = {}
+_PARSE_LOCK = threading.Lock()
 _CACHE_LOCK = threading.Lock()
 
 
@@ -466,6 +475,36 @@ def get_system(db, db_key: str, elements: Sequence[str], phases: Sequence[str], 
             system = ThermoSystem(db, sorted(elements), sorted(phases), pressure)
             _CACHE[key] = system
     return system
+
+
+@contextlib.contextmanager
+def checked_expressions(check: Callable[[str], None]) -> Iterator[None]:
+    """While pycalphad parses, run `check` on every string its reader hands to SymEngine.
+
+    Defence in depth behind `solubility.tdb_guard.guard_tdb_text`, which finds the expressions by reading the
+    text itself: here the reader's own expression function (``pycalphad.io.tdb._sympify_string`` in 0.11.2) is
+    wrapped, under a lock, for the duration of one parse. Where that private function is missing (another
+    pycalphad version), only the text guard applies.
+    """
+    try:
+        from pycalphad.io import tdb as tdb_module
+
+        original = tdb_module._sympify_string
+    except (ImportError, AttributeError):
+        yield
+        return
+
+    def guarded(math_string: str) -> object:
+        check(math_string)
+        return original(math_string)
+
+    with _PARSE_LOCK:
+        tdb_module._sympify_string = guarded
+        try:
+            yield
+        finally:
+            tdb_module._sympify_string = original
+
 
 
 @functools.cache

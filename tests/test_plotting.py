@@ -6,12 +6,12 @@ import matplotlib
 
 matplotlib.use("Agg")
 
-import matplotlib.pyplot as plt  # noqa: E402
-import pytest  # noqa: E402
+import matplotlib.pyplot as plt
+import pytest
 
-import solubility  # noqa: E402
-from solubility.errors import InputError  # noqa: E402
-from solubility.plotting import plot_arrhenius, plot_solvus, save_solvus_figure  # noqa: E402
+import solubility
+from solubility.errors import InputError
+from solubility.plotting import plot_arrhenius, plot_solvus, save_solvus_figure
 
 
 @pytest.fixture(scope="module")
