@@ -34,6 +34,8 @@ def check_output_path(path: str | os.PathLike, *, overwrite: bool = False) -> Pa
     if p.exists() and not overwrite:
         raise OutputError(f"output file {str(p)!r} exists already; remove it or pass --overwrite")
     parent = p.parent if str(p.parent) else Path(".")
+    if parent.exists() and not parent.is_dir():
+        raise OutputError(f"{str(parent)!r}, the folder of output file {str(p)!r}, is a file, not a folder")
     if not parent.is_dir():
         raise OutputError(f"folder {str(parent)!r} of output file {str(p)!r} does not exist")
     if not os.access(parent, os.W_OK | os.X_OK):
@@ -59,13 +61,17 @@ def atomic_write(path: str | os.PathLike, write: Callable[[Path], None]) -> Path
         The final path.
     """
     p = Path(path)
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=p.parent if str(p.parent) else ".")
+    folder = p.parent if str(p.parent) else Path(".")
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=folder)
+    except OSError as exc:  # the folder went away or became unwritable after check_output_path
+        raise OutputError(f"could not write {str(p)!r}: {exc.strerror or exc}") from None
     os.close(fd)
     tmp = Path(tmp_name)
     umask = os.umask(0)
     os.umask(umask)
-    os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; a result file gets the usual permissions
     try:
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; a result file gets the usual permissions
         write(tmp)
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())

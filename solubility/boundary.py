@@ -35,6 +35,11 @@ REFINE_MARGIN = 1000.0
 Y_MIN = 1e-30
 #: largest solute site fraction searched (the interstitial sublattice is then practically full)
 Y_MAX = 1.0 - 1e-9
+#: a cold start looks for a single-phase field narrower than its scan spacing only where the least unstable scan
+#: point is within this many RT of stability (between scan points F(s) changes by a fraction of RT)
+NARROW_SEARCH = 0.5
+#: gas constant, J/(mol K), pycalphad's value (only used to scale NARROW_SEARCH)
+R = 8.3145
 #: temperature tolerance for locating a change of partner, K
 T_TOL = 0.005
 #: ln(y) grid of the cold scan: one point a decade below y = 1e-6 (a single-phase field that narrow at such
@@ -170,16 +175,21 @@ class _Engine:
             y0 = self.system.screen(mu, T, [phase])[phase][1]
         return self.system.driving_force(phase, mu, T, y0)
 
-    def all_df(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None = None) -> dict:
+    def all_df(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None = None,
+               quick: bool = False) -> dict:
         """Driving force (J/mol of atoms) of every non-host candidate at `mu`.
 
         Each phase is first evaluated on its fixed constitution sample (a lower bound of its driving force).
         A phase whose best sample lies below minus its margin is taken as it is. Any other is refined: from its
         hint (its optimum at a nearby state) if it has one, and from its best sample where no hint is given or
-        the sample beats the hint's optimum. Returns {phase: (value, y, converged)}.
+        the sample beats the hint's optimum. With `quick`, when a sample already has a positive driving force
+        (so the host is unstable there whatever refinement finds) the samples are returned unrefined.
+        Returns {phase: (value, y, converged)}.
         """
         hints = hints or {}
         sampled = self.system.screen(mu, T, self.others)
+        if quick and max(v for v, _ in sampled.values()) > 0:
+            return {phase: (value, y, True) for phase, (value, y) in sampled.items()}
         out = {}
         for phase, (value, y_best) in sampled.items():
             if value < -self.margin[phase]:
@@ -259,8 +269,9 @@ class _Engine:
                                  partner_y, max_other)
         return BoundaryPoint(T, s, partners, mu, "ok", "", partner_y, max_other)
 
-    def max_df(self, s: float, T: float) -> tuple[float, str, dict]:
-        dfs = self.all_df(self.mu(s, T), T)
+    def max_df(self, s: float, T: float, quick: bool = False) -> tuple[float, str, dict]:
+        """F(s): the largest driving force of another phase against the host at ln(y) = s (see `all_df`)."""
+        dfs = self.all_df(self.mu(s, T), T, quick=quick)
         phase = max(dfs, key=lambda p: dfs[p][0])
         return dfs[phase][0], phase, dfs
 
@@ -272,7 +283,7 @@ class _Engine:
         host is declared unstable, so a single-phase field narrower than the scan spacing is still found.
         """
         grid = [float(g) for g in _SCAN]
-        scans = [self.max_df(s, T) for s in grid]
+        scans = [self.max_df(s, T, quick=True) for s in grid]
         values = [v[:2] for v in scans]
         stable = [f < 0 for f, _ in values]
         if not stable[0] and self._solute_rich(scans[0]):
@@ -281,7 +292,9 @@ class _Engine:
             return self._null(T, "below_limit", f"solubility of {self.host.solute} in {self.host.phase} is below "
                                                 f"the searched limit (site fraction {Y_MIN:g})")
         if not any(stable):
-            found = self._narrow_field(T, grid, values)
+            found = None
+            if min(f for f, _ in values) < NARROW_SEARCH * R * T:
+                found = self._narrow_field(T, grid, values)
             if found is None:
                 least = min(range(len(grid)), key=lambda k: values[k][0])
                 return self._null(T, "host_unstable",
