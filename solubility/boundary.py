@@ -320,13 +320,17 @@ class _Engine:
         return bool(x_phase[k] / x_phase.sum() > 1e-6)
 
     def _narrow_field(self, T: float, grid: list[float], values: list) -> tuple[int, float] | None:
-        """A stable point between scan points near the least unstable one, or None."""
+        """A stable point between the scan points around the two least unstable ones, or None.
+
+        F is minimised with the quick form of `max_df`, which is exact wherever F < 0 and a lower bound of a
+        positive F elsewhere, so a stable point it finds is a true one.
+        """
         from scipy.optimize import minimize_scalar
 
-        order = sorted(range(1, len(grid) - 1), key=lambda k: values[k][0])[:3]
+        order = sorted(range(1, len(grid) - 1), key=lambda k: values[k][0])[:2]
         for k in order:
-            res = minimize_scalar(lambda s: self.max_df(s, T)[0], bounds=(grid[k - 1], grid[k + 1]),
-                                  method="bounded", options={"xatol": 1e-7})
+            res = minimize_scalar(lambda s: self.max_df(s, T, quick=True)[0], bounds=(grid[k - 1], grid[k + 1]),
+                                  method="bounded", options={"xatol": 1e-5})
             if res.fun < 0:
                 return (k if res.x > grid[k] else k - 1), float(res.x)
         return None
