@@ -14,7 +14,7 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["SolvusJob", "host_model", "prepare"]
+__all__ = ["SolvusJob", "check_fix", "host_elements", "host_model", "prepare"]
 
 INTERSTITIAL_HINT = ("B", "C", "H", "N", "O")
 
@@ -35,7 +35,7 @@ class SolvusJob:
     host: object  # HostModel
 
 
-def _check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
+def check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
     if fix is None:
         return {}
     if not isinstance(fix, Mapping):
@@ -77,7 +77,7 @@ def _substitutional_elements(ratios, species, solute: str) -> tuple[int, list[st
     return inter[0], subst
 
 
-def _host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
+def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
     from .database import check_elements
 
     ratios, species = ldb.sublattices(phase)
@@ -143,12 +143,12 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     excluded = check_phases(ldb, [str(p).strip().upper() for p in exclude]) if exclude else ()
     if phase in excluded:
         raise InputError(f"host phase {phase} is also excluded")
-    fixed = _check_fix(fix)
+    fixed = check_fix(fix)
     check_elements(ldb, list(fixed))
     if solute in fixed:
         raise InputError(f"solute {solute} cannot also be fixed")
     p = _check_pressure(pressure)
-    bal = _host_elements(ldb, phase, solute, fixed, balance)
+    bal = host_elements(ldb, phase, solute, fixed, balance)
     elements = sorted({bal, solute, *fixed})
     candidates = [ph for ph in filter_candidate_phases(ldb.db, elements) if ph not in excluded]
     if phase not in candidates:

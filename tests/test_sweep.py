@@ -137,7 +137,7 @@ def test_local_pool_gives_the_same_dataset(serial):
 
 
 def test_dask_local_cluster_gives_the_same_dataset(serial):
-    distributed = pytest.importorskip("distributed")
+    import distributed  # in the test extra: a missing install fails here rather than skipping
     # threads in this process: the cheapest cluster that still goes through the client and scheduler
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster:
@@ -214,6 +214,8 @@ def test_inputs_are_checked_before_any_work(tmp_path):
         sweep(CASES[:1], workers=2, scheduler="tcp://127.0.0.1:1")
     with pytest.raises(InputError, match="workers must be a whole number"):
         sweep(CASES[:1], workers=-1)
+    with pytest.raises(InputError, match="resume needs a store"):
+        sweep(CASES[:1], resume=True)
 
 
 def test_cases_may_be_given_as_mappings(serial):
@@ -223,7 +225,6 @@ def test_cases_may_be_given_as_mappings(serial):
 
 
 def test_sweep_dataset_round_trips_through_netcdf(serial, tmp_path):
-    pytest.importorskip("h5py")
     from solubility.sweeps import write_netcdf
 
     path = tmp_path / "sweep.nc"

@@ -217,3 +217,37 @@ def test_a_full_disk_is_one_line_and_leaves_a_resumable_store(job, reference, tm
     assert not list(store.glob("case-*")) and not list(store.glob(".*"))  # no case file, whole or partial
     resumed = _run(["sweep", str(job), "--workers", "0", "--store", str(store), "--resume", "--json"])
     assert resumed.returncode == reference[0] and resumed.stdout == reference[1]
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="POSIX terminal")
+def test_progress_bar_only_on_a_terminal(tmp_path):
+    import fcntl
+    import pty
+    import struct
+    import termios
+
+    job = tmp_path / "one.toml"
+    job.write_text('[[case]]\nname = "g"\ndatabase = "fe-c"\nphase = "GRAPHITE"\nsolute = "C"\ntemperatures = [1000]\n')
+    main_fd, child_fd = pty.openpty()
+    fcntl.ioctl(child_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 24, 100, 0, 0))  # a 100-column terminal
+    try:
+        run = subprocess.run([*_command(), "sweep", str(job), "--workers", "0"], stdout=subprocess.DEVNULL,
+                             stderr=child_fd, timeout=300)
+        os.close(child_fd)
+        chunks = []
+        while True:
+            try:
+                chunk = os.read(main_fd, 65536)
+            except OSError:  # EIO once the terminal's other end is closed and drained
+                break
+            if not chunk:
+                break
+            chunks.append(chunk)
+    finally:
+        os.close(main_fd)
+    text = b"".join(chunks).decode()
+    assert run.returncode == 1  # the one case fails
+    assert "1/1 [" in text and "g: failed" in text  # tqdm's bar, with the case just finished
+    assert "sweep: 1 cases, 0 ok, 1 failed" in text
+    quiet = _run(["sweep", str(job), "--workers", "0", "--quiet"])
+    assert quiet.returncode == 1 and quiet.stderr == ""

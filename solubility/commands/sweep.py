@@ -39,7 +39,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--store", metavar="DIR", help="write every finished case to folder DIR at once")
     parser.add_argument("--resume", action="store_true", help="keep finished cases of --store, run the rest")
     parser.add_argument(
-        "--overwrite", action="store_true", help="replace existing output files and start --store afresh"
+        "--overwrite",
+        action="store_true",
+        help="replace existing output files; start --store afresh if it holds another job (or, without"
+        " --resume, this one)",
     )
     parser.add_argument("--strict", action="store_true", help="stop at the first failed case (exit status 2)")
     parser.add_argument("--netcdf", metavar="F", help="write the sweep Dataset to NetCDF file F")
@@ -80,6 +83,7 @@ def run(args: argparse.Namespace) -> int:
     from .._io import check_output_path
     from ..errors import InputError
     from ..sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
+    from ..sweeps.assemble import check_netcdf_engine
     from ._common import emit_json
 
     if args.resume and not args.store:
@@ -87,6 +91,8 @@ def run(args: argparse.Namespace) -> int:
     outputs = [(p, w) for p, w in ((args.netcdf, write_netcdf), (args.csv, write_csv)) if p]
     for path, _ in outputs:
         check_output_path(path, overwrite=args.overwrite)
+    if args.netcdf:
+        check_netcdf_engine()
     cases = read_job(args.job)
     started = time.perf_counter()
     counter = _Counter(show_bar=not args.quiet and sys.stderr.isatty())

@@ -6,6 +6,10 @@ dask.distributed, writes each finished case to a store folder if asked (so an in
 losing or repeating work) and returns one `xarray.Dataset` along ``case``. `read_job` reads the cases from a
 TOML job file.
 
+The package is called ``sweeps`` so that importing it never hides the function `solubility.sweep` (a
+submodule's name is bound on its package when it is imported). ``solubility.sweep``, ``solubility.read_job``
+and ``solubility.Case`` are these same objects.
+
 Modules: `case` (the Case type and its validation), `job` (TOML job files), `executors` (where cases run),
 `store` (the on-disk store), `assemble` (the sweep Dataset and its JSON, CSV and NetCDF forms), `run`
 (`sweep` itself).

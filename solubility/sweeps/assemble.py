@@ -30,11 +30,12 @@ from typing import Any
 import numpy as np
 
 from .._io import atomic_write, atomic_write_text
+from ..errors import OutputError
 from ..results import ZERO_CELSIUS
 from .case import Case
 from .store import CaseOutcome
 
-__all__ = ["assemble", "case_dataset", "sweep_json", "write_csv", "write_netcdf"]
+__all__ = ["assemble", "case_dataset", "check_netcdf_engine", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
 
 #: solvus attributes kept once for the whole sweep (besides every ``*_version``)
 _GLOBAL = ("caution",)
@@ -359,6 +360,17 @@ def write_csv(ds, path: str | os.PathLike) -> None:
     atomic_write_text(path, csv_text(ds))
 
 
+def check_netcdf_engine() -> None:
+    """Raise an OutputError unless NetCDF-4 files can be written (h5netcdf and its h5py backend)."""
+    try:
+        import h5netcdf  # noqa: F401
+        import h5py  # noqa: F401
+    except ImportError:
+        raise OutputError("NetCDF output needs h5netcdf and h5py (dependencies of solubility): "
+                          "pip install h5netcdf h5py") from None
+
+
 def write_netcdf(ds, path: str | os.PathLike) -> None:
-    """Write the sweep Dataset atomically to `path` (NetCDF-4 through h5netcdf)."""
+    """Write the sweep Dataset atomically to `path` (NetCDF-4 through h5netcdf; strings as text)."""
+    check_netcdf_engine()
     atomic_write(path, lambda tmp: ds.to_netcdf(tmp, engine="h5netcdf"))

@@ -136,11 +136,26 @@ class _Worker:
         self.conn.close()
 
 
+#: modules the fork server imports once, so that forked workers start with them loaded (about 3 s each)
+PRELOAD = (
+    "solubility.sweeps.executors",
+    "solubility.boundary",
+    "solubility.setup",
+    "solubility.thermo",
+    "solubility.database",
+    "solubility.results",
+    "xarray",
+    "pycalphad",
+    "pycalphad.core.utils",
+    "pycalphad.codegen.phase_record_factory",
+)
+
+
 def _context():
     method = start_method()
     ctx = multiprocessing.get_context(method)
     if method == "forkserver":
-        ctx.set_forkserver_preload(["solubility.sweeps.executors", "solubility.boundary"])
+        ctx.set_forkserver_preload(list(PRELOAD))
     return ctx
 
 
@@ -250,6 +265,10 @@ class DaskExecutor:
                 futures[future] = index
             try:
                 for future in self._distributed.as_completed(list(futures), loop=client.loop):
-                    yield futures[future], future.result()
+                    try:
+                        outcome = future.result()
+                    except Exception as exc:  # the cluster lost the task (a worker died, ...)
+                        outcome = CaseOutcome(status="failed", error=one_line(exc))
+                    yield futures[future], outcome
             finally:
                 client.cancel(list(futures))

@@ -58,7 +58,8 @@ def sweep(
     strict
         Stop at the first failed case and raise its error (named after the case) instead of recording it.
     overwrite
-        Start the store afresh even if it holds a store of this or another job (its store files are removed).
+        Start the store afresh if it holds a store of another job, or of this job when not resuming (only the
+        store's own files are removed).
 
     Returns
     -------
@@ -82,6 +83,8 @@ def sweep(
     case_list = _as_cases(cases)
     if scheduler is not None and workers is not None:
         raise InputError("give workers or scheduler, not both (dask workers are set up on the cluster)")
+    if resume and store is None:
+        raise InputError("resume needs a store (the folder of the run to resume)")
     executor = _executor(workers, scheduler)
     check_databases(case_list)
     job = job_sha256(case_list)
@@ -140,9 +143,11 @@ def check_databases(cases: list[Case]) -> None:
     ------
     JobError
         Naming the case and the key: a database that is neither a file nor a bundled name or cannot be read,
-        a phase (host or excluded) or element (solute, fixed, balance) that the database lacks.
+        a phase (host or excluded) or element (solute, fixed, balance) that the database lacks, a host phase
+        without an interstitial sublattice for the solute, or fixed contents outside (0, 1).
     """
     from ..database import check_elements, check_phases, load_database
+    from ..setup import check_fix, host_elements
 
     loaded: dict[str, Any] = {}
     for case in cases:
@@ -166,6 +171,10 @@ def check_databases(cases: list[Case]) -> None:
                     check(ldb, names)
             except SolubilityError as exc:
                 raise JobError(f"{where}: key {key!r}: {exc}") from None
+        try:  # the host must be (hosts)a(X,VA)c over the case's elements, with valid fixed contents
+            host_elements(ldb, case.phase, case.solute, check_fix(dict(case.fix)), case.balance)
+        except SolubilityError as exc:
+            raise JobError(f"{where}: {exc}") from None
 
 
 def _executor(workers: int | None, scheduler: Any):

@@ -242,9 +242,10 @@ def open_store(path: str | os.PathLike, cases: list[Case], *, resume: bool, over
     cases
         The job's cases, in order.
     resume
-        Continue a store of this same job: its finished cases are kept.
+        Continue a store of this same job: its finished cases are kept (even with `overwrite`).
     overwrite
-        Start afresh in a folder that holds a store (of this or another job): its store files are removed.
+        Start afresh in a folder that holds a store of another job, or of this job when not resuming: the
+        store's own files are removed (nothing else in the folder).
 
     Raises
     ------
@@ -260,25 +261,20 @@ def open_store(path: str | os.PathLike, cases: list[Case], *, resume: bool, over
     if manifest is None:
         others = [e for e in os.listdir(p) if not _ours(e)]
         if others:
-            raise OutputError(
-                f"store folder {str(p)!r} holds other files ({others[0]!r}, ...); give a new folder"
-            )
-    elif overwrite:
-        _clear(p)
-        manifest = None
-    elif manifest.get("job_sha256") != job:
+            raise OutputError(f"store folder {str(p)!r} holds other files ({others[0]!r}, ...); give a new folder")
+    elif manifest.get("job_sha256") != job and not overwrite:
         raise OutputError(
             f"store {str(p)!r} was written by a different job (job sha256"
             f" {str(manifest.get('job_sha256'))[:12]}, this job {job[:12]});"
             " use another folder or pass overwrite"
         )
+    elif manifest.get("job_sha256") != job or (overwrite and not resume):
+        manifest = None  # start afresh
+    elif not resume and any(_CASE_FILE.match(e) for e in os.listdir(p)):
+        raise OutputError(f"store {str(p)!r} already holds cases of this job; pass resume to continue, or overwrite")
     store = Store(p, cases, job)
     _remove_partial(p)
     if manifest is None:
         _clear(p)
         atomic_write_text(p / MANIFEST, json.dumps(_manifest(cases, job), indent=1) + "\n")
-    elif not resume and any(_CASE_FILE.match(e) for e in os.listdir(p)):
-        raise OutputError(
-            f"store {str(p)!r} already holds cases of this job; pass resume to continue, or overwrite"
-        )
     return store
