@@ -27,6 +27,7 @@ from solubility.errors import InputError, JobError, OutputError
 from solubility.sweeps import Case, case_dataset, sweep, sweep_json
 
 METASTABLE = ["DIAMOND_A4", "GRAPHITE"]
+NOT_BCC = ["CEMENTITE_D011", "DIAMOND_A4", "FCC_A1", "GRAPHITE", "HCP_A3", "LIQUID", "M7C3_D101"]
 
 CASES = [
     Case(name="ferrite", database="fe-c", phase="BCC_A2", solute="C", temperatures="850:950:50"),
@@ -36,9 +37,10 @@ CASES = [
     # a grid of its own: the union T has points that other cases pad with NaN
     Case(name="austenite-cementite", database="fe-c", phase="FCC_A1", solute="C",
          temperatures=[1250, 1300, 1325], exclude=METASTABLE),
-    # GRAPHITE has no interstitial sublattice: the solvus refuses it (a real failure, not an injected one);
-    # ferrite stays below the metastable eutectoid (727 C, Okamoto 1992), where its partner would be austenite
-    Case(name="graphite-host", database="fe-c", phase="GRAPHITE", solute="C", temperatures=[1000]),
+    # every partner excluded: the job passes the checks made before any work, and the solvus then refuses
+    # the case (a real failure, not an injected one)
+    Case(name="no-partner", database="fe-c", phase="BCC_A2", solute="C", temperatures=[1000],
+         exclude=NOT_BCC),
 ]
 
 
@@ -68,7 +70,7 @@ def test_layout(serial):
     assert asked.tolist() == [False, False, False, False, False, True, True, True]
     padded = serial["X"].sel(case="austenite-cementite").values[~asked]
     assert np.isnan(padded).all()
-    assert serial["phase"].values.tolist() == ["BCC_A2", "FCC_A1", "BCC_A2", "FCC_A1", "GRAPHITE"]
+    assert serial["phase"].values.tolist() == ["BCC_A2", "FCC_A1", "BCC_A2", "FCC_A1", "BCC_A2"]
     assert serial["exclude"].values.tolist()[2] == "DIAMOND_A4,GRAPHITE"
     assert json.loads(serial["fix"].values[0]) == {}
     assert serial["pressure"].attrs["units"] == "Pa"
@@ -104,16 +106,16 @@ def test_metastable_partner_gives_the_higher_solubility(serial):
 def test_a_failed_case_is_recorded_and_the_others_go_on(serial):
     status = dict(zip(serial["case"].values.tolist(), serial["case_status"].values.tolist(), strict=True))
     assert status == {"ferrite": "ok", "austenite": "ok", "ferrite-cementite": "ok",
-                      "austenite-cementite": "ok", "graphite-host": "failed"}
-    error = str(serial["case_error"].sel(case="graphite-host").values)
-    assert error.startswith("InputError: ") and "GRAPHITE" in error and "\n" not in error
-    failed = serial.sel(case="graphite-host")
+                      "austenite-cementite": "ok", "no-partner": "failed"}
+    error = str(serial["case_error"].sel(case="no-partner").values)
+    assert error.startswith("InputError: ") and "no candidate partner" in error and "\n" not in error
+    failed = serial.sel(case="no-partner")
     assert bool(failed["requested"].sel(T=1000)) and np.isnan(failed["X"].values).all()
     assert not failed["converged"].values.any()
 
 
 def test_strict_raises_the_error_of_the_case_by_name():
-    with pytest.raises(InputError, match=r"^case 'graphite-host': .*GRAPHITE"):
+    with pytest.raises(InputError, match=r"^case 'no-partner': .*no candidate partner"):
         sweep(CASES[-1:], workers=0, strict=True)
 
 
@@ -162,7 +164,7 @@ def test_store_and_resume(serial, tmp_path):
                     progress=lambda done, total, case, status: calls.append((done, case and case.name)))
     assert_same_sweep(resumed, serial)
     # the finished ok cases were read back, not run again; the failed one was run again
-    assert calls == [(2, None), (3, "austenite"), (4, "austenite-cementite"), (5, "graphite-host")]
+    assert calls == [(2, None), (3, "austenite"), (4, "austenite-cementite"), (5, "no-partner")]
     assert all((store / n).stat().st_mtime_ns == t for n, t in kept.items() if n != "case-00004.json")
     assert not list(store.glob(".*.part"))
 

@@ -42,9 +42,10 @@ phase = "BCC_A2"
 temperatures = "850:950:50"
 
 [[case]]
-name = "graphite-host"  # no interstitial sublattice: this case fails, the others go on
-phase = "GRAPHITE"
+name = "no-partner"  # every partner excluded: this case fails, the others go on
+phase = "BCC_A2"
 temperatures = [1000]
+exclude = ["CEMENTITE_D011", "DIAMOND_A4", "FCC_A1", "GRAPHITE", "HCP_A3", "LIQUID", "M7C3_D101"]
 
 [[product]]
 name = "{phase}-p{pressure}"
@@ -94,7 +95,7 @@ def test_json_netcdf_and_csv_outputs(reference):
     data = json.loads(text)  # exactly one JSON object on stdout
     assert list(data) == ["cases"] and len(data["cases"]) == N_CASES
     failed = [c for c in data["cases"] if c["status"] == "failed"]
-    assert [c["name"] for c in failed] == ["graphite-host"] and failed[0]["error"].startswith("InputError")
+    assert [c["name"] for c in failed] == ["no-partner"] and failed[0]["error"].startswith("InputError")
     ferrite = data["cases"][0]
     assert ferrite["temperature_K"] == [850.0, 900.0, 950.0] and ferrite["partner_phases"][0] == ["GRAPHITE"]
     assert [c["name"] for c in data["cases"][2:4]] == ["BCC_A2-p100000", "BCC_A2-p2e+08"]
@@ -109,7 +110,7 @@ def test_summary_on_stderr_and_a_table_on_stdout(job, reference, capsys):
     assert main(["sweep", str(job), "--workers", "0"]) == 1
     out, err = capsys.readouterr()
     assert out.splitlines()[0].split() == ["case", "status", "points", "converged", "partners", "error"]
-    assert "graphite-host" in out
+    assert "no-partner" in out
     # not a terminal: no progress bar, only the summary
     assert err.strip().splitlines() == [err.strip()]
     assert err.startswith(f"sweep: {N_CASES} cases, {N_CASES - 1} ok, 1 failed, ")
@@ -173,7 +174,7 @@ def test_sigkill_part_way_then_resume_gives_the_uninterrupted_result(job, refere
     assert proc.returncode == -signal.SIGKILL
     files = list(store.glob("case-*.json"))
     assert 1 <= len(files) < N_CASES, "the kill came too late to test anything"
-    # finished cases are kept on resume; a failed one (graphite-host) is run again
+    # finished cases are kept on resume; a failed one (no-partner) is run again
     before = {p.name: p.stat().st_mtime_ns for p in files if json.loads(p.read_text())["status"] == "ok"}
     out = tmp_path / "out"
     out.mkdir()
@@ -227,7 +228,9 @@ def test_progress_bar_only_on_a_terminal(tmp_path):
     import termios
 
     job = tmp_path / "one.toml"
-    job.write_text('[[case]]\nname = "g"\ndatabase = "fe-c"\nphase = "GRAPHITE"\nsolute = "C"\ntemperatures = [1000]\n')
+    job.write_text('[[case]]\nname = "g"\ndatabase = "fe-c"\nphase = "BCC_A2"\nsolute = "C"\ntemperatures = [1000]\n'
+                   'exclude = ["CEMENTITE_D011", "DIAMOND_A4", "FCC_A1", "GRAPHITE", "HCP_A3", "LIQUID",'
+                   ' "M7C3_D101"]\n')
     main_fd, child_fd = pty.openpty()
     fcntl.ioctl(child_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 24, 100, 0, 0))  # a 100-column terminal
     try:
