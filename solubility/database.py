@@ -386,6 +386,23 @@ def _suggest(name: str, known: Iterable[str]) -> str:
     return f"; did you mean {', '.join(close)}?" if close else ""
 
 
+def _check_names(ldb: LoadedDatabase, names: Iterable[str], what: str, known: Sequence[str],
+                 shown: Sequence[str] | None = None, listed: bool = True) -> tuple[str, ...]:
+    """Upper-case `names` and check each is in `known`; DatabaseError naming the first that is not.
+
+    The message suggests close matches among `shown` (default `known`) and, if `listed`, lists them.
+    """
+    shown = known if shown is None else shown
+    out = []
+    for n in names:
+        name = str(n).strip().upper()
+        if name not in known:
+            listing = f" ({what}s: {', '.join(shown)})" if listed else ""
+            raise DatabaseError(f"{what} {n!r} is not in database {ldb.name!r}{_suggest(name, shown)}{listing}")
+        out.append(name)
+    return tuple(out)
+
+
 def check_phases(ldb: LoadedDatabase, names: Iterable[str]) -> tuple[str, ...]:
     """Upper-case `names` and check each is a phase of the database.
 
@@ -394,43 +411,19 @@ def check_phases(ldb: LoadedDatabase, names: Iterable[str]) -> tuple[str, ...]:
     DatabaseError
         An unknown phase (pycalphad itself would drop it silently); the message suggests close matches.
     """
-    out = []
-    for n in names:
-        name = str(n).strip().upper()
-        if name not in ldb.db.phases:
-            raise DatabaseError(
-                f"phase {n!r} is not in database {ldb.name!r}{_suggest(name, ldb.phases)} "
-                f"(phases: {', '.join(ldb.phases)})"
-            )
-        out.append(name)
-    return tuple(out)
+    return _check_names(ldb, names, "phase", ldb.phases)
 
 
 def check_elements(ldb: LoadedDatabase, names: Iterable[str]) -> tuple[str, ...]:
     """Upper-case `names` and check each is an element of the database (DatabaseError otherwise)."""
-    out = []
-    for n in names:
-        name = str(n).strip().upper()
-        if name not in ldb.elements:
-            real = [e for e in ldb.elements if e not in ("VA", "/-")]
-            raise DatabaseError(
-                f"element {n!r} is not in database {ldb.name!r}{_suggest(name, real)} "
-                f"(elements: {', '.join(real)})"
-            )
-        out.append(name)
-    return tuple(out)
+    real = [e for e in ldb.elements if e not in ("VA", "/-")]
+    return _check_names(ldb, names, "element", ldb.elements, shown=real)
 
 
 def check_species(ldb: LoadedDatabase, names: Iterable[str]) -> tuple[str, ...]:
     """Upper-case `names` and check each is a species of the database (DatabaseError otherwise)."""
     known = sorted(str(s.name).upper() for s in ldb.db.species)
-    out = []
-    for n in names:
-        name = str(n).strip().upper()
-        if name not in known:
-            raise DatabaseError(f"species {n!r} is not in database {ldb.name!r}{_suggest(name, known)}")
-        out.append(name)
-    return tuple(out)
+    return _check_names(ldb, names, "species", known, listed=False)
 
 
 def components_for(ldb: LoadedDatabase, elements: Iterable[str]) -> list[str]:
