@@ -70,8 +70,9 @@ def test_dilute_boundary_matches_independent_root(T):
     assert ds.partner.values[0] == "CEMENTITE_D011"
     y = float(ds.Y.values[0])
     s_ref = _independent_dilute_root(load_database("fe-c").db, T, y)
-    # 1e-6 relative is asked down to x = 1e-12; the reference's own difference formula is good to ~1e-8
-    assert abs(math.log(y) - s_ref) < 1e-6
+    # 1e-6 relative is asked down to x = 1e-12; the reference itself (a three-point difference of smooth terms,
+    # h = 1e-4) is good to about 1e-10, and the two agree to about 5e-11, so 1e-8 still leaves a wide margin
+    assert abs(math.log(y) - s_ref) < 1e-8
     assert T != 330.0 or float(ds.X.values[0]) < 1e-10  # the test really reaches the dilute end
 
 
