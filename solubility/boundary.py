@@ -106,7 +106,7 @@ class BoundaryPoint:
         the solubility) or "failed" (the solve or its check failed).
     reason
         Why there is no number (or why it is not converged); "" otherwise.
-    partner_y
+    phase_y
         Constitution of each refined phase at its optimum at the boundary (warm starts for the next point).
     max_other_df
         Largest driving force of any non-partner candidate at the boundary, J/mol of atoms (must be <= 0).
@@ -118,7 +118,7 @@ class BoundaryPoint:
     mu: np.ndarray
     status: str
     reason: str = ""
-    partner_y: Mapping[str, np.ndarray] = field(default_factory=dict)
+    phase_y: Mapping[str, np.ndarray] = field(default_factory=dict)
     max_other_df: float = float("nan")
 
     @property
@@ -258,16 +258,16 @@ class _Engine:
         partners = tuple(sorted(p for p, (v, _, _) in dfs.items() if abs(v) <= DF_TOL))
         others = [v for p, (v, _, _) in dfs.items() if p not in partners]
         max_other = max(others) if others else -math.inf
-        partner_y = {p: y for p, (_, y, _) in dfs.items()}
+        phase_y = {p: y for p, (_, y, _) in dfs.items()}
         if not partners:
-            return BoundaryPoint(T, s, (), mu, "failed", "no partner at zero driving force", partner_y, max_other)
+            return BoundaryPoint(T, s, (), mu, "failed", "no partner at zero driving force", phase_y, max_other)
         if max_other > DF_TOL:
             return BoundaryPoint(T, s, partners, mu, "failed", "another phase is more stable at the boundary",
-                                 partner_y, max_other)
+                                 phase_y, max_other)
         if not all(dfs[p][2] for p in partners):
             return BoundaryPoint(T, s, partners, mu, "failed", "partner constitution did not converge",
-                                 partner_y, max_other)
-        return BoundaryPoint(T, s, partners, mu, "ok", "", partner_y, max_other)
+                                 phase_y, max_other)
+        return BoundaryPoint(T, s, partners, mu, "ok", "", phase_y, max_other)
 
     def max_df(self, s: float, T: float, quick: bool = False) -> tuple[float, str, dict]:
         """F(s): the largest driving force of another phase against the host at ln(y) = s (see `all_df`)."""
@@ -358,11 +358,11 @@ class _Engine:
             # ln y is close to linear in 1/T along one partner (Arrhenius): extrapolate
             slope = (prev.s - before.s) / (1.0 / prev.T - 1.0 / before.T)
             s0 = prev.s + slope * (1.0 / T - 1.0 / prev.T)
-        sol = self.solve_partner(partner, T, s0, prev.partner_y.get(partner))
+        sol = self.solve_partner(partner, T, s0, prev.phase_y.get(partner))
         if sol is None:
             return self.cold(T)
         s, res = sol
-        point = self.finish(T, s, {partner: res}, prev.partner_y)
+        point = self.finish(T, s, {partner: res}, prev.phase_y)
         if point.converged:
             return point
         return self.cold(T)
@@ -376,7 +376,7 @@ class _Engine:
         """Locate the temperature between valid points a and b where the partner changes, to T_TOL."""
         beta, gamma = a.partners[0], next(p for p in b.partners if p not in a.partners)
         T_lo, T_hi = a.T, b.T
-        s_ref, y_beta, y_gamma = a.s, a.partner_y.get(beta), b.partner_y.get(gamma)
+        s_ref, y_beta, y_gamma = a.s, a.phase_y.get(beta), b.phase_y.get(gamma)
 
         def h(T: float) -> float | None:
             sol = self.solve_partner(beta, T, s_ref, y_beta)

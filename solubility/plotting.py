@@ -45,7 +45,8 @@ def _segments(ds):
     return [(p, np.array(idx)) for p, idx in runs if idx]
 
 
-def _spacing(ts: list, T: np.ndarray) -> float:
+def _spacing(T: np.ndarray) -> float:
+    """Largest step between the temperatures of the line."""
     steps = np.diff(np.sort(T))
     return float(steps.max()) if steps.size else 0.0
 
@@ -90,16 +91,17 @@ def plot_solvus(ds, ax=None, *, units: str = "wt%", temperature: str = "C", log:
     colour_of: dict[str, str] = {}
     host = ds.attrs.get("phase", "host")
     ends = _change_ends(ds, var, temperature)
+    step = _spacing(T)
     for partner, idx in _segments(ds):
         first = partner not in colour_of
         colour = colour_of.setdefault(partner, colours[len(colour_of) % len(colours)])
         xs, ts = list(ds[var].values[idx] * factor), list(T[idx])
         for comp, t_change, phases in ends:  # run each segment on to the exact change temperature
             if partner in phases:
-                if ts[-1] < t_change and (t_change - ts[-1]) < 2 * _spacing(ts, T):
+                if ts[-1] < t_change and (t_change - ts[-1]) < 2 * step:
                     xs.append(comp * factor)
                     ts.append(t_change)
-                elif ts[0] > t_change and (ts[0] - t_change) < 2 * _spacing(ts, T):
+                elif ts[0] > t_change and (ts[0] - t_change) < 2 * step:
                     xs.insert(0, comp * factor)
                     ts.insert(0, t_change)
         ax.plot(xs, ts, "-", color=colour, marker="." if idx.size < 30 else None,

@@ -16,9 +16,6 @@ from .errors import InputError
 
 __all__ = ["SolvusJob", "check_fix", "host_elements", "host_model", "prepare"]
 
-INTERSTITIAL_HINT = ("B", "C", "H", "N", "O")
-
-
 @dataclass(frozen=True)
 class SolvusJob:
     """A validated solvus request with its compiled system."""
@@ -68,7 +65,7 @@ def _check_pressure(pressure: float) -> float:
     return p
 
 
-def _substitutional_elements(ratios, species, solute: str) -> tuple[int, list[str]]:
+def _substitutional_elements(species, solute: str) -> tuple[int, list[str]]:
     """Index of the interstitial sublattice and the substitutional elements of a (hosts)a(X,VA)c phase."""
     inter = [i for i, sp in enumerate(species) if "VA" in sp and solute in sp]
     if not inter:
@@ -80,9 +77,9 @@ def _substitutional_elements(ratios, species, solute: str) -> tuple[int, list[st
 def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
     from .database import check_elements
 
-    ratios, species = ldb.sublattices(phase)
+    _, species = ldb.sublattices(phase)
     try:
-        _, subst = _substitutional_elements(ratios, species, solute)
+        _, subst = _substitutional_elements(species, solute)
     except InputError:
         held = " : ".join(",".join(sp) for sp in species)
         raise InputError(

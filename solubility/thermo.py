@@ -505,11 +505,3 @@ def checked_expressions(check: Callable[[str], None]) -> Iterator[None]:
         finally:
             tdb_module._sympify_string = original
 
-
-
-@functools.cache
-def pycalphad_version() -> str:
-    """Installed pycalphad version."""
-    import pycalphad
-
-    return str(pycalphad.__version__)

@@ -113,8 +113,6 @@ def run(args: argparse.Namespace) -> int:
     except ValueError:
         raise InputError(f"--pressure {args.pressure!r} is not a number of Pa") from None
     outs = _outputs(args)
-    if args.plot:
-        from ..plotting import UNITS  # noqa: F401  (fail early if matplotlib is broken)
     ds = solvus(args.database, args.phase, args.solute, args.temperatures, exclude=args.exclude,
                 fix=_fix_map(args.fix), pressure=pressure, balance=args.balance, celsius=args.celsius)
     for kind, path in outs:
