@@ -94,7 +94,7 @@ def main(argv=None) -> int:
     parser.add_argument("--skip-cold", action="store_true", help="skip the cold-process comparison D")
     args = parser.parse_args(argv)
 
-    from solubility.database import load_database
+    from solubility.databases.reader import load_database
 
     db = load_database("fe-c").db
     _run_a()  # warm up: compile the system once
@@ -138,13 +138,14 @@ def main(argv=None) -> int:
             ref_script = Path(tmp) / "cold_reference.py"
             ref_script.write_text(
                 "from pycalphad import Database, equilibrium, variables as v\n"
-                "from solubility.database import _bundled_path\n"
+                "from solubility.databases.reader import _bundled_path\n"
                 "db = Database(str(_bundled_path('fe-c')))\n"
                 "phases = [p for p in db.phases if p not in ('GRAPHITE', 'DIAMOND_A4')]\n"
                 "equilibrium(db, ['C', 'FE', 'VA'], phases, {v.T: 800, v.P: 101325, v.N: 1, v.X('C'): 0.01})\n"
             )
             exe = Path(sys.executable).parent / "solubility"
-            cli = [str(exe) if exe.exists() else sys.executable, *([] if exe.exists() else ["-m", "solubility.cli"]),
+            cli = [str(exe) if exe.exists() else sys.executable,
+                   *([] if exe.exists() else ["-m", "solubility.cli.main"]),
                    "solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures", "500:990:1",
                    "--exclude", *EXCLUDE, "--json"]
             cold_ref = _cold([sys.executable, str(ref_script)], args.rounds)

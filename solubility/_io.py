@@ -8,7 +8,7 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
-from .errors import OutputError
+from solubility.errors import OutputError
 
 __all__ = ["atomic_write", "check_output_path"]
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import pytest
 
-from solubility.model import SublatticeModel
+from solubility.models.sublattice import SublatticeModel
 
 IDEAL_CASES = [
     # (c, A, B, p, q, partner A, partner B); invented ideal data (labelled: not an assessment)
@@ -22,7 +22,7 @@ IDEAL_CASES = [
 
 
 def ideal_db(c, A, B, p, q, GA, GB):
-    from solubility.database import _parse_text
+    from solubility.databases.reader import _parse_text
 
     m = SublatticeModel.from_ratios("SS", "FE", "C", a=1.0, c=c)
     # invented reference data (mass of FE and C from the bundled fe-c ELEMENT lines; H298/S298 unused here)

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import pytest
 
-from solubility.audit import VERDICTS, audit_database, lattice_from_name
-from solubility.database import load_database
+from solubility.databases.audit import VERDICTS, audit_database, lattice_from_name
+from solubility.databases.reader import load_database
 from solubility.errors import DatabaseError, InputError
 
 # (phase, site ratios, lattice, site kind, n, blocking, verdict), SGTE conventions (Dinsdale 1991)
@@ -147,7 +147,7 @@ def test_lattice_from_name(name, lattice):
 def test_model_written_by_the_tool_audits_back(tmp_path, structure, kind, blocking):
     # round trip: model -> TDB text -> pycalphad -> audit recovers the site family and the blocking
     # (cases where no smaller family has a count in between, so the audit's answer is unique)
-    from solubility.model import SublatticeModel
+    from solubility.models.sublattice import SublatticeModel
 
     m = SublatticeModel.from_structure(None, "FE", "C", structure, kind, blocking=blocking)
     els = {"FE": ("BCC_A2", 55.847, 4489.0, 27.28), "C": ("GRAPHITE", 12.011, 1054.0, 5.74)}  # cfe_broshe.tdb

@@ -24,7 +24,7 @@ from typing import Any
 import pytest
 
 from solubility import errors
-from solubility.cli import COMMANDS, main
+from solubility.cli.main import COMMANDS, main
 
 DATA = Path(__file__).parent / "bad_inputs"
 MANIFEST = tomllib.loads((DATA / "cases.toml").read_text(encoding="utf-8"))

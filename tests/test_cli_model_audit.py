@@ -12,8 +12,8 @@ from pathlib import Path
 
 import pytest
 
-from solubility.cli import main
-from solubility.database import load_database
+from solubility.cli.main import main
+from solubility.databases.reader import load_database
 
 _ELEMENTS = (
     " ELEMENT VA VACUUM 0 0 0 !\n ELEMENT FE BCC_A2 55.847 4489 27.28 !\n"
@@ -178,7 +178,7 @@ def test_databases_lists_bundled(capsys):
 
 def test_installed_command_prints_a_loadable_block(tmp_path):
     exe = Path(sys.executable).with_name("solubility")
-    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "solubility.cli"]
+    cmd = [str(exe)] if exe.exists() else [sys.executable, "-m", "solubility.cli.main"]
     proc = subprocess.run(
         [*cmd, "model", "bcc", "--host", "FE", "--solute", "C", "--site", "octahedral", "--with-elements"],
         capture_output=True,

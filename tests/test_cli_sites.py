@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from solubility.cli import main
+from solubility.cli.main import main
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples" / "structures"
 
@@ -133,7 +133,7 @@ def test_installed_command_subprocess() -> None:
 def test_sites_command_imports_nothing_heavy() -> None:
     code = (
         "import sys, io, contextlib\n"
-        "from solubility.cli import main\n"
+        "from solubility.cli.main import main\n"
         "with contextlib.redirect_stdout(io.StringIO()):\n"
         "    rc = main(['sites', 'bcc', '--json'])\n"
         "heavy = sorted(m for m in ('pycalphad', 'xarray', 'matplotlib') if m in sys.modules)\n"

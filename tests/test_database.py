@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from solubility.database import (
+from solubility.databases.reader import (
     LoadedDatabase,
     add_model,
     bundled_databases,
@@ -28,7 +28,7 @@ from solubility.database import (
     load_database,
 )
 from solubility.errors import DatabaseError, DatabaseNotFoundError
-from solubility.model import GAS_CONSTANT, SublatticeModel
+from solubility.models.sublattice import GAS_CONSTANT, SublatticeModel
 
 DB_DIR = Path(__file__).resolve().parents[1] / "solubility" / "databases"
 

@@ -22,17 +22,17 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from solubility.boundary import solvus_line
-from solubility.cli import main
-from solubility.results import build_dataset, solvus_json
-from solubility.setup import prepare
-from solubility.thermo import ThermoSystem
+from solubility.calc.boundary import solvus_line
+from solubility.calc.inputs import prepare
+from solubility.cli.main import main
+from solubility.results.dataset import build_dataset, solvus_json
+from solubility.thermo.system import ThermoSystem
 
 TEMPERATURES = (700.0, 750.0, 800.0, 850.0, 900.0)  # K
 EXCLUDE = ("GRAPHITE", "DIAMOND_A4")
 PARTNER = "CEMENTITE_D011"
 #: after a failed point the next one starts from the last good point, two steps back instead of one; the
-#: boundary solve stops at |DF| < 1e-9 J/mol or a step below 1e-12 in ln y (solubility.boundary), so the two
+#: boundary solve stops at |DF| < 1e-9 J/mol or a step below 1e-12 in ln y (solubility.calc.boundary), so the two
 #: starts agree to far better than this relative tolerance on x
 RTOL_AFTER_FAILURE = 1e-7
 CLI_ARGS = ["solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures", "700:900:50",
@@ -158,7 +158,7 @@ def test_output_inside_regular_file_is_refused_before_work(monkeypatch, tmp_path
     blocker = tmp_path / "not-a-folder"
     blocker.write_text("a regular file\n", encoding="utf-8")
     computed = []
-    monkeypatch.setattr("solubility.boundary.solvus_line", lambda *a, **k: computed.append(1))
+    monkeypatch.setattr("solubility.calc.boundary.solvus_line", lambda *a, **k: computed.append(1))
     status = main([*CLI_ARGS, "--csv", str(blocker / "line.csv")])
     out, err = capsys.readouterr()
     assert status == 2 and out == ""
@@ -205,7 +205,7 @@ def test_output_folder_removed_during_the_run(monkeypatch, tmp_path, capsys):
         folder.rmdir()
         return result
 
-    monkeypatch.setattr("solubility.boundary.solvus_line", line_then_remove_folder)
+    monkeypatch.setattr("solubility.calc.boundary.solvus_line", line_then_remove_folder)
     status = main([*CLI_ARGS, "--csv", str(folder / "line.csv")])
     out, err = capsys.readouterr()
     assert status == 2, err

@@ -19,7 +19,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from solubility.database import MAX_NESTING, check_expression, guard_tdb_text, load_database
+from solubility.databases.reader import MAX_NESTING, check_expression, guard_tdb_text, load_database
 from solubility.errors import DatabaseError
 
 _TIMEOUT_S = 120  # bounds a hang only: the guarded files here are small and parse in well under a second
@@ -39,7 +39,7 @@ _SETTINGS = settings(
 
 def _probe(path: str) -> tuple[str, str, str]:
     """Worker: load `path`; report ("ok"|"own"|"foreign", exception type, message)."""
-    from solubility.database import clear_cache
+    from solubility.databases.reader import clear_cache
     from solubility.errors import SolubilityError
 
     clear_cache()
@@ -353,7 +353,7 @@ def test_guard_finds_expressions_in_abbreviated_commands(command):
 
 def test_hook_guards_what_pycalphad_evaluates(tmp_path, monkeypatch):
     # with the text guard switched off, the hook on pycalphad's expression function still refuses the power
-    import solubility.database as database
+    import solubility.databases.reader as database
 
     monkeypatch.setattr(database, "guard_tdb_text", lambda *args, **kwargs: None)
     p = tmp_path / "hook.tdb"

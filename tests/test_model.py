@@ -1,5 +1,6 @@
-"""SublatticeModel, its TDB text and the closed forms of `solubility.model`.  References: site counts per host
-atom are textbook crystallography (fcc: 1 octahedral and 2 tetrahedral sites per atom; bcc: 3 octahedral and 6
+"""SublatticeModel, its TDB text and the closed forms of `solubility.models.sublattice`.
+
+References: site counts per host atom are textbook crystallography (fcc: 1 octahedral and 2 tetrahedral sites per atom; bcc: 3 octahedral and 6
 tetrahedral; hcp: 1 octahedral and 2 tetrahedral; e.g. Porter, Easterling and Sherif, Phase Transformations in
 Metals and Alloys, 3rd ed., section 2.3; from memory). The site ratios of FCC_A1 1:1, BCC_A2 1:3, HCP_A3 1:0.5
 are those of the SGTE unary data (Dinsdale, Calphad 15 (1991) 317). The closed forms are checked against
@@ -19,7 +20,7 @@ import pytest
 from ideal_systems import IDEAL_CASES, ideal_db
 
 from solubility.errors import InputError, StructureError
-from solubility.model import (
+from solubility.models.sublattice import (
     GAS_CONSTANT,
     SublatticeModel,
     dilute_solubility,
@@ -33,7 +34,7 @@ from solubility.model import (
 def test_import_does_not_pull_heavy_modules():
     # design.md: model never imports pycalphad, xarray or matplotlib (sympy only inside functions)
     code = (
-        "import sys, solubility.model\n"
+        "import sys, solubility.models.sublattice\n"
         "bad = [m for m in ('pycalphad', 'xarray', 'matplotlib', 'sympy') if m in sys.modules]\n"
         "print(','.join(bad))"
     )
@@ -68,8 +69,8 @@ def test_default_names_and_site():
 
 
 def test_from_site_family_uses_family_count():
-    from solubility.sites import find_sites
-    from solubility.structure import builtin_structure
+    from solubility.geometry.sites import find_sites
+    from solubility.geometry.structure import builtin_structure
 
     fam = next(f for f in find_sites(builtin_structure("bcc")) if f.kind == "octahedral")
     m = SublatticeModel.from_site_family("BCC_A2", ["FE", "CR"], ["C", "N"], fam, blocking=0.25, a=2.0)

@@ -11,7 +11,7 @@ import pytest
 
 import solubility
 from solubility.errors import InputError
-from solubility.plotting import plot_arrhenius, plot_solvus, save_solvus_figure
+from solubility.results.plotting import plot_arrhenius, plot_solvus, save_solvus_figure
 
 
 @pytest.fixture(scope="module")

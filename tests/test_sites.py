@@ -19,8 +19,8 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from solubility.errors import InputError, StructureError
-from solubility.sites import DIST_TOL, SIZE_RULE_LIMIT, SiteFamily, find_sites, misfit
-from solubility.structure import Structure, builtin_structure
+from solubility.geometry.sites import DIST_TOL, SIZE_RULE_LIMIT, SiteFamily, find_sites, misfit
+from solubility.geometry.structure import Structure, builtin_structure
 
 TOL = 1e-9
 
@@ -283,7 +283,7 @@ def test_builtins_invariant_under_supercell_and_origin(builtin_families, name: s
 # ---- misfit (Eshelby, isotropic continuum) ----
 # J. D. Eshelby, Solid State Physics 3 (1956) 79: a misfitting sphere in an infinite isotropic matrix; the
 # rigid solute stores 8 pi mu r^3 eps^2, a compressible one (bulk modulus K)
-# 8 pi mu r^3 eps^2 * 3K / (3K + 4 mu) (derived in the docstring of solubility.sites.misfit from the matrix
+# 8 pi mu r^3 eps^2 * 3K / (3K + 4 mu) (derived in the docstring of solubility.geometry.sites.misfit from the matrix
 # field u = A / rho^2).
 
 MU, K = 8.2e10, 1.7e11  # Pa; round numbers of the size of iron's shear and bulk moduli, from memory
@@ -355,9 +355,9 @@ def test_find_sites_needs_a_structure() -> None:
 def test_geometry_modules_import_nothing_heavy() -> None:
     code = (
         "import sys\n"
-        "import solubility.structure, solubility.sites, solubility.commands.sites\n"
-        "from solubility.sites import find_sites\n"
-        "from solubility.structure import builtin_structure\n"
+        "import solubility.geometry.structure, solubility.geometry.sites, solubility.cli.commands.sites\n"
+        "from solubility.geometry.sites import find_sites\n"
+        "from solubility.geometry.structure import builtin_structure\n"
         "find_sites(builtin_structure('bcc'))\n"
         "heavy = sorted(m for m in ('pycalphad', 'xarray', 'matplotlib') if m in sys.modules)\n"
         "print(','.join(heavy))\n"

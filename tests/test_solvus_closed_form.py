@@ -1,8 +1,8 @@
 """The solvus engine against the exact closed form of an ideal interstitial solution (the models issue).
 
 For an ideal (M)a(X,VA)c solution with end-member energy dG = A + B T against a partner M_p X_q, the boundary
-solves q ln y + (p c / a - q) ln(1 - y) = (dGf - q dG / c) / (R T) exactly (`solubility.model.dilute_solubility`,
-itself checked against pycalphad's equilibrium in test_model.py). The systems are built by the tool from
+solves q ln y + (p c / a - q) ln(1 - y) = (dGf - q dG / c) / (R T) exactly
+(`solubility.models.sublattice.dilute_solubility`, itself checked against pycalphad's equilibrium in test_model.py). The systems are built by the tool from
 invented ideal data (tests/ideal_systems.py); the temperatures are chosen so that y runs from about 1e-2 down to
 below 1e-12, where pycalphad's own global equilibrium can no longer resolve the composition. Tolerance 1e-6
 relative, the issue's figure; the engine's error is about 1e-10 (the noise of double-precision energies).
@@ -15,7 +15,7 @@ import pytest
 from ideal_systems import IDEAL_CASES, ideal_db
 
 import solubility
-from solubility.model import dilute_solubility
+from solubility.models.sublattice import dilute_solubility
 
 
 @pytest.mark.parametrize(("c", "A", "B", "p", "q", "GA", "GB"), IDEAL_CASES)
@@ -37,7 +37,7 @@ def test_solvus_matches_closed_form_from_dilute_to_concentrated(c, A, B, p, q, G
 def test_apparent_enthalpy_of_an_ideal_dilute_solution():
     # pure-solute partner, ideal (M)1(X,VA)3 with dG = A (B = 0): y/(1-y) = exp(-A/(3RT)), and in the dilute
     # limit x = 3y/(1+3y) ~ 3y, so ln x = ln 3 - A/(3RT) and Q = -R dln(x)/d(1/T) = A/3 exactly as y -> 0
-    from solubility.plotting import apparent_enthalpy
+    from solubility.results.plotting import apparent_enthalpy
 
     A = 60000.0
     db = ideal_db(3.0, A, 0.0, 0.0, 1.0, 0.0, 0.0)

@@ -24,7 +24,7 @@ from pycalphad import variables as v
 from pycalphad.variables import Species
 
 import solubility
-from solubility.database import load_database
+from solubility.databases.reader import load_database
 
 U_M = 0.03
 T = 850.0

@@ -18,7 +18,7 @@ import pytest
 from pycalphad import calculate
 
 import solubility
-from solubility.database import load_database
+from solubility.databases.reader import load_database
 
 R = 8.3145  # pycalphad's gas constant (pycalphad.variables.R), which its ideal-mixing term uses
 METASTABLE = ["GRAPHITE", "DIAMOND_A4"]

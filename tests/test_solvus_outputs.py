@@ -13,8 +13,8 @@ import pytest
 import xarray as xr
 
 import solubility
-from solubility.cli import main
-from solubility.results import parse_temperatures, solvus_json, write_csv, write_netcdf
+from solubility.cli.main import main
+from solubility.results.dataset import parse_temperatures, solvus_json, write_csv, write_netcdf
 
 METASTABLE = ["GRAPHITE", "DIAMOND_A4"]
 
@@ -109,7 +109,7 @@ def test_cli_writes_outputs_atomically_and_refuses_to_overwrite(tmp_path, capsys
 
 def test_installed_command_runs(tmp_path):
     script = Path(sys.executable).parent / "solubility"  # the console script pip installed beside python
-    exe = [str(script)] if script.exists() else [sys.executable, "-m", "solubility.cli"]
+    exe = [str(script)] if script.exists() else [sys.executable, "-m", "solubility.cli.main"]
     res = subprocess.run([*exe, "solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures",
                           "800", "--exclude", "GRAPHITE", "DIAMOND_A4", "--json"],
                          capture_output=True, text=True, timeout=600, check=False)

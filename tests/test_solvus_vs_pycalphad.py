@@ -13,7 +13,7 @@ from pycalphad import equilibrium
 from pycalphad import variables as v
 
 import solubility
-from solubility.database import load_database
+from solubility.databases.reader import load_database
 
 rng = np.random.default_rng(20261201)
 CEMENTITE_T = np.sort(rng.uniform(560.0, 990.0, 24))  # alpha + Fe3C field of the metastable diagram

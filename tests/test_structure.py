@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from solubility.errors import StructureError
-from solubility.structure import (
+from solubility.geometry.structure import (
     BUILTIN_NAMES,
     IDEAL_C_OVER_A,
     Structure,

@@ -22,7 +22,7 @@ from pathlib import Path
 import pytest
 import xarray as xr
 
-from solubility.cli import main
+from solubility.cli.main import main
 
 try:  # --netcdf writes NetCDF-4 through h5netcdf, which needs h5py (the checks without it still run)
     import h5py  # noqa: F401
@@ -60,7 +60,7 @@ N_CASES = 8
 
 def _command() -> list[str]:
     script = Path(sys.executable).with_name("solubility")
-    return [str(script)] if script.exists() else [sys.executable, "-m", "solubility.cli"]
+    return [str(script)] if script.exists() else [sys.executable, "-m", "solubility.cli.main"]
 
 
 def _nc(path: Path) -> xr.Dataset:

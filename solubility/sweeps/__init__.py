@@ -17,10 +17,10 @@ Modules: `case` (the Case type and its validation), `job` (TOML job files), `exe
 
 from __future__ import annotations
 
-from .assemble import case_dataset, csv_text, sweep_json, write_csv, write_netcdf
-from .case import Case, job_sha256
-from .job import parse_job, read_job
-from .run import sweep
+from solubility.sweeps.assemble import case_dataset, csv_text, sweep_json, write_csv, write_netcdf
+from solubility.sweeps.case import Case, job_sha256
+from solubility.sweeps.job import parse_job, read_job
+from solubility.sweeps.run import sweep
 
 __all__ = [
     "Case",

@@ -29,11 +29,11 @@ from typing import Any
 
 import numpy as np
 
-from .._io import atomic_write, atomic_write_text
-from ..errors import OutputError
-from ..results import ZERO_CELSIUS
-from .case import Case
-from .store import CaseOutcome
+from solubility._io import atomic_write, atomic_write_text
+from solubility.errors import OutputError
+from solubility.results.dataset import ZERO_CELSIUS
+from solubility.sweeps.case import Case
+from solubility.sweeps.store import CaseOutcome
 
 __all__ = ["assemble", "case_dataset", "check_netcdf_engine", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
 
@@ -300,7 +300,7 @@ def sweep_json(ds) -> dict[str, Any]:
 
 def _solvus_json(one) -> dict[str, Any]:
     if "X" in one.data_vars:
-        from ..results import solvus_json
+        from solubility.results.dataset import solvus_json
 
         return solvus_json(one)
     n = one.sizes["T"]

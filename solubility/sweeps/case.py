@@ -15,7 +15,7 @@ from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, fields
 from typing import Any
 
-from ..errors import InputError, JobError
+from solubility.errors import InputError, JobError
 
 __all__ = ["CASE_KEYS", "DEFAULT_PRESSURE", "REQUIRED_KEYS", "Case", "job_sha256"]
 
@@ -102,7 +102,7 @@ def _phase(value: Any, where: str, key: str) -> str:
 def _temperatures(value: Any, where: str, key: str) -> tuple[float, ...]:
     """A START:STOP:STEP string (STOP included) or a list of temperatures in K -> increasing tuple, K."""
     if isinstance(value, str):
-        from ..results import parse_temperatures  # light module-level imports only (numpy)
+        from solubility.results.dataset import parse_temperatures  # light module-level imports only (numpy)
 
         try:
             values = [float(t) for t in parse_temperatures(value)]
@@ -196,7 +196,7 @@ class Case:
     name
         Unique name of the case in its sweep; it becomes the ``case`` coordinate.
     database
-        Path of a TDB file or name of a bundled database (`solubility.database.bundled_databases`). A relative
+        Path of a TDB file or name of a bundled database (`solubility.databases.reader.bundled_databases`). A relative
         path is relative to the current folder (`read_job` makes job-file paths absolute).
     phase
         Host phase, such as ``"BCC_A2"`` (upper-cased).

@@ -22,9 +22,9 @@ from collections.abc import Iterator, Sequence
 from multiprocessing.connection import wait
 from typing import Any
 
-from ..errors import InputError
-from .case import Case
-from .store import CaseOutcome
+from solubility.errors import InputError
+from solubility.sweeps.case import Case
+from solubility.sweeps.store import CaseOutcome
 
 __all__ = ["DaskExecutor", "LocalPool", "SerialExecutor", "default_workers", "run_case", "start_method"]
 
@@ -34,7 +34,7 @@ Item = tuple[int, Case]
 def run_case(case: Case) -> CaseOutcome:
     """Compute one case with `solubility.solvus`; any exception becomes a failed outcome with its message."""
     try:
-        from ..boundary import solvus
+        from solubility.calc.boundary import solvus
 
         ds = solvus(
             case.database,
@@ -139,11 +139,11 @@ class _Worker:
 #: modules the fork server imports once, so that forked workers start with them loaded (about 3 s each)
 PRELOAD = (
     "solubility.sweeps.executors",
-    "solubility.boundary",
-    "solubility.setup",
-    "solubility.thermo",
-    "solubility.database",
-    "solubility.results",
+    "solubility.calc.boundary",
+    "solubility.calc.inputs",
+    "solubility.thermo.system",
+    "solubility.databases.reader",
+    "solubility.results.dataset",
     "xarray",
     "pycalphad",
     "pycalphad.core.utils",

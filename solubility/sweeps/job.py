@@ -29,8 +29,8 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from ..errors import JobError
-from .case import CASE_KEYS, Case, _kind, check_keys, check_unique_names, suggest
+from solubility.errors import JobError
+from solubility.sweeps.case import CASE_KEYS, Case, _kind, check_keys, check_unique_names, suggest
 
 __all__ = ["parse_job", "read_job"]
 

@@ -7,12 +7,12 @@ import sys
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
-from .. import errors
-from ..errors import InputError, JobError, SolubilityError
-from .assemble import assemble
-from .case import Case, check_unique_names, job_sha256
-from .executors import DaskExecutor, LocalPool, SerialExecutor, default_workers
-from .store import CaseOutcome, Store, open_store
+from solubility import errors
+from solubility.errors import InputError, JobError, SolubilityError
+from solubility.sweeps.assemble import assemble
+from solubility.sweeps.case import Case, check_unique_names, job_sha256
+from solubility.sweeps.executors import DaskExecutor, LocalPool, SerialExecutor, default_workers
+from solubility.sweeps.store import CaseOutcome, Store, open_store
 
 __all__ = ["check_databases", "sweep"]
 
@@ -137,7 +137,7 @@ def _as_cases(cases: Iterable[Case | Mapping[str, Any]]) -> list[Case]:
 def check_databases(cases: list[Case]) -> None:
     """Check every case against its database before any work: the file or bundled name, phases, elements.
 
-    Each database is read once (`solubility.database.load_database`, cached per process).
+    Each database is read once (`solubility.databases.reader.load_database`, cached per process).
 
     Raises
     ------
@@ -146,8 +146,8 @@ def check_databases(cases: list[Case]) -> None:
         a phase (host or excluded) or element (solute, fixed, balance) that the database lacks, a host phase
         without an interstitial sublattice for the solute, or fixed contents outside (0, 1).
     """
-    from ..database import check_elements, check_phases, load_database
-    from ..setup import check_fix, host_elements
+    from solubility.calc.inputs import check_fix, host_elements
+    from solubility.databases.reader import check_elements, check_phases, load_database
 
     loaded: dict[str, Any] = {}
     for case in cases:

@@ -29,9 +29,9 @@ from typing import Any
 
 import numpy as np
 
-from .._io import atomic_write_text
-from ..errors import OutputError
-from .case import Case, job_sha256
+from solubility._io import atomic_write_text
+from solubility.errors import OutputError
+from solubility.sweeps.case import Case, job_sha256
 
 __all__ = ["CaseOutcome", "Store", "decode_dataset", "encode_dataset", "open_store"]
 
@@ -175,7 +175,7 @@ def decode_dataset(data: Mapping[str, Any]):
 
 
 def _manifest(cases: list[Case], job: str) -> dict[str, Any]:
-    from .. import __version__
+    from solubility import __version__
 
     return {
         "format": FORMAT,

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import emit_json
+from solubility.cli.commands._common import emit_json
 
 
 def _mapping(text: str) -> tuple[str, str]:
@@ -67,8 +67,8 @@ def _table(rows: list, name: str) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Audit the database and print a table or JSON."""
-    from ..audit import audit_database
-    from ..database import load_database
+    from solubility.databases.audit import audit_database
+    from solubility.databases.reader import load_database
 
     ldb = load_database(args.database)
     rows = audit_database(ldb, structure_map=dict(args.structure))

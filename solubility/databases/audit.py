@@ -27,8 +27,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from .errors import InputError
-from .model import DEFAULT_SITE_KIND, INTERSTITIAL_ELEMENTS
+from solubility.errors import InputError
+from solubility.models.sublattice import DEFAULT_SITE_KIND, INTERSTITIAL_ELEMENTS
 
 __all__ = ["LATTICE_TAGS", "VERDICTS", "AuditRow", "audit_database", "lattice_from_name"]
 
@@ -132,8 +132,8 @@ def _interstitial_sublattice(constituents: tuple[tuple[str, ...], ...]) -> int |
 
 @functools.cache
 def _families(lattice: str) -> tuple[tuple[str, float], ...]:
-    from .sites import find_sites
-    from .structure import builtin_structure
+    from solubility.geometry.sites import find_sites
+    from solubility.geometry.structure import builtin_structure
 
     return tuple((str(f.kind), float(f.per_host_atom)) for f in find_sites(builtin_structure(lattice)))
 
@@ -201,7 +201,7 @@ def audit_database(spec: Any, *, structure_map: Mapping[str, str] | None = None)
     Parameters
     ----------
     spec
-        Anything `solubility.database.load_database` takes, or a LoadedDatabase.
+        Anything `solubility.databases.reader.load_database` takes, or a LoadedDatabase.
     structure_map
         ``{phase: lattice}`` overriding the lattice read from the phase name (lattice: fcc, bcc, hcp, sc,
         diamond).
@@ -219,7 +219,7 @@ def audit_database(spec: Any, *, structure_map: Mapping[str, str] | None = None)
     InputError
         The mapping names an unknown lattice.
     """
-    from .database import LoadedDatabase, check_phases, load_database
+    from solubility.databases.reader import LoadedDatabase, check_phases, load_database
 
     ldb = spec if isinstance(spec, LoadedDatabase) else load_database(spec)
     mapping = _check_map(structure_map)

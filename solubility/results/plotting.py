@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from solubility.errors import InputError
 
 __all__ = ["apparent_enthalpy", "plot_arrhenius", "plot_solvus", "save_solvus_figure"]
 
@@ -193,8 +193,8 @@ def save_solvus_figure(ds, path: str | Path, *, units: str = "wt%", temperature:
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
-    from ._io import atomic_write
-    from .results import CAUTION
+    from solubility._io import atomic_write
+    from solubility.results.dataset import CAUTION
 
     _check(units, temperature)
     suffix = Path(path).suffix.lower().lstrip(".")

@@ -14,7 +14,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from ._common import emit_json, finite_float
+from solubility.cli.commands._common import emit_json, finite_float
 
 _STRUCTURES = ("fcc", "bcc", "hcp", "sc", "diamond")
 
@@ -87,9 +87,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Build the model and print or write its TDB block."""
-    from .._io import atomic_write_text, check_output_path
-    from ..errors import InputError
-    from ..model import SublatticeModel
+    from solubility._io import atomic_write_text, check_output_path
+    from solubility.errors import InputError
+    from solubility.models.sublattice import SublatticeModel
 
     structure = args.structure.strip()
     if structure.lower() not in _STRUCTURES and not Path(structure).is_file():
@@ -109,7 +109,7 @@ def run(args: argparse.Namespace) -> int:
     )
     elements = None
     if args.with_elements:
-        from ..database import element_data, load_database
+        from solubility.databases.reader import element_data, load_database
 
         elements = element_data(load_database(args.with_elements), [*model.hosts, *model.interstitials])
     text = model.tdb_block(dict(args.parameter), elements=elements)

@@ -13,8 +13,8 @@ import importlib
 import sys
 from collections.abc import Sequence
 
-from . import __version__
-from .errors import SolubilityError
+from solubility import __version__
+from solubility.errors import SolubilityError
 
 #: subcommands in the order ``--help`` lists them
 COMMANDS = ("sites", "model", "databases", "audit", "solvus", "sweep")
@@ -47,7 +47,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
-        module = importlib.import_module(f".commands.{name}", __package__)
+        module = importlib.import_module(f"solubility.cli.commands.{name}")
         doc = (module.__doc__ or "").strip()
         summary = doc.splitlines()[0] if doc else name
         cmd = sub.add_parser(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import emit_json
+from solubility.cli.commands._common import emit_json
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -18,7 +18,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """List the bundled databases."""
-    from ..database import bundled_databases
+    from solubility.databases.reader import bundled_databases
 
     entries = bundled_databases()
     if args.json:

@@ -16,7 +16,7 @@ import argparse
 from fractions import Fraction
 from typing import Any
 
-from ._common import emit_json, positive_float
+from solubility.cli.commands._common import emit_json, positive_float
 
 #: elementary charge, J per eV (exact in the SI since 2019)
 _J_PER_EV = 1.602176634e-19
@@ -45,7 +45,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def _check_options(args: argparse.Namespace, absolute: bool) -> None:
-    from ..errors import InputError
+    from solubility.errors import InputError
 
     moduli = args.shear_modulus is not None or args.solute_bulk_modulus is not None
     if args.solute_radius is None and moduli:
@@ -60,7 +60,7 @@ def _check_options(args: argparse.Namespace, absolute: bool) -> None:
 
 
 def _misfit_dict(family: Any, args: argparse.Namespace) -> dict[str, Any] | None:
-    from ..sites import misfit
+    from solubility.geometry.sites import misfit
 
     if args.solute_radius is None or family.radius <= 0:
         return None
@@ -160,8 +160,8 @@ def _table(structure: Any, families: tuple, args: argparse.Namespace) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Find the site families and print them (table, or one JSON object with --json)."""
-    from ..sites import find_sites
-    from ..structure import load_structure
+    from solubility.geometry.sites import find_sites
+    from solubility.geometry.structure import load_structure
 
     structure = load_structure(
         args.structure,

@@ -31,7 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from solubility.errors import InputError
 
 __all__ = [
     "CAUTION",
@@ -129,7 +129,7 @@ def _versions() -> dict[str, str]:
     import scipy
     import xarray
 
-    from . import __version__
+    from solubility import __version__
 
     return {
         "solubility_version": __version__,
@@ -155,7 +155,7 @@ def _composition(line, s: float) -> tuple[float, float, float]:
 
 
 def build_dataset(line, job):
-    """The solvus Dataset from a `solubility.boundary.SolvusLine` and its `solubility.setup.SolvusJob`."""
+    """The solvus Dataset from a `solubility.calc.boundary.SolvusLine` and its `solubility.calc.inputs.SolvusJob`."""
     import xarray as xr
 
     pts = line.points
@@ -279,14 +279,14 @@ def csv_text(ds) -> str:
 
 def write_csv(ds, path: str | Path) -> Path:
     """Write the CSV table atomically."""
-    from ._io import atomic_write_text
+    from solubility._io import atomic_write_text
 
     return atomic_write_text(path, csv_text(ds))
 
 
 def write_netcdf(ds, path: str | Path) -> Path:
     """Write the Dataset as NetCDF-4 (h5netcdf) atomically; string variables are stored as text."""
-    from ._io import atomic_write
+    from solubility._io import atomic_write
 
     out = ds.copy()
     for name in out.variables:
@@ -297,6 +297,6 @@ def write_netcdf(ds, path: str | Path) -> Path:
 
 def write_json(ds, path: str | Path) -> Path:
     """Write the JSON contract atomically."""
-    from ._io import atomic_write_text
+    from solubility._io import atomic_write_text
 
     return atomic_write_text(path, json.dumps(solvus_json(ds), indent=1) + "\n")

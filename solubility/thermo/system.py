@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import DatabaseError
+from solubility.errors import DatabaseError
 
 __all__ = [
     "DrivingForce",
@@ -481,7 +481,7 @@ def get_system(db, db_key: str, elements: Sequence[str], phases: Sequence[str], 
 def checked_expressions(check: Callable[[str], None]) -> Iterator[None]:
     """While pycalphad parses, run `check` on every string its reader hands to SymEngine.
 
-    Defence in depth behind `solubility.tdb_guard.guard_tdb_text`, which finds the expressions by reading the
+    Defence in depth behind `solubility.databases.guard.guard_tdb_text`, which finds the expressions by reading the
     text itself: here the reader's own expression function (``pycalphad.io.tdb._sympify_string`` in 0.11.2) is
     wrapped, under a lock, for the duration of one parse. Where that private function is missing (another
     pycalphad version), only the text guard applies.

@@ -54,8 +54,8 @@ from itertools import combinations
 import numpy as np
 from scipy.spatial import ConvexHull, Delaunay, QhullError, cKDTree
 
-from .errors import InputError, StructureError
-from .structure import Structure, cell_diagonal, is_positive_number, periodic_images
+from solubility.errors import InputError, StructureError
+from solubility.geometry.structure import Structure, cell_diagonal, is_positive_number, periodic_images
 
 __all__ = ["SIZE_RULE_LIMIT", "Misfit", "SiteFamily", "find_sites", "misfit"]
 

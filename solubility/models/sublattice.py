@@ -2,7 +2,7 @@
 
 The site ratio of the interstitial sublattice keeps three numbers apart (design.md):
 
-* ``n``: the geometric count of interstitial sites of one family per host atom (from `solubility.sites`);
+* ``n``: the geometric count of interstitial sites of one family per host atom (from `solubility.geometry.sites`);
 * ``b``: a blocking fraction, the share of those sites made unavailable by repulsion between neighbouring
   solutes, ``0 <= b < 1``;
 * ``c = a n (1 - b)``: the site ratio written into the database (``a`` host sites per formula unit).
@@ -38,10 +38,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .errors import InputError, StructureError
+from solubility.errors import InputError, StructureError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .sites import SiteFamily
+    from solubility.geometry.sites import SiteFamily
 
 __all__ = [
     "DEFAULT_PHASE_NAMES",
@@ -225,7 +225,7 @@ class SublatticeModel:
         a: float = 1.0,
         structure: str | None = None,
     ) -> SublatticeModel:
-        """A model on one site family of `solubility.sites`: ``c = a n (1 - b)``, n = family.per_host_atom."""
+        """A model on one site family of `solubility.geometry.sites`: ``c = a n (1 - b)``, n = family.per_host_atom."""
         n = _positive(getattr(family, "per_host_atom", float("nan")), "sites per host atom of the family")
         a = _positive(a, "host site ratio a")
         b = float(blocking)
@@ -262,7 +262,7 @@ class SublatticeModel:
         phase
             Phase name, or None for the conventional one of a built-in lattice (`DEFAULT_PHASE_NAMES`).
         structure_name
-            fcc, bcc, hcp, sc, diamond, or a structure file (`solubility.structure.load_structure`).
+            fcc, bcc, hcp, sc, diamond, or a structure file (`solubility.geometry.structure.load_structure`).
         site_kind
             Kind of site family, or None for the one C and N usually take in a built-in lattice
             (`DEFAULT_SITE_KIND`); required for a structure file.
@@ -277,8 +277,8 @@ class SublatticeModel:
         InputError
             A structure file without a phase name or a site kind.
         """
-        from .sites import find_sites
-        from .structure import load_structure
+        from solubility.geometry.sites import find_sites
+        from solubility.geometry.structure import load_structure
 
         text = str(structure_name).strip()
         builtin = text.lower() in DEFAULT_PHASE_NAMES
@@ -360,9 +360,9 @@ class SublatticeModel:
         ------
         InputError
             A parameter names another phase, an unknown species or sublattice count, or its expression fails
-            the database guards (`solubility.database.check_expression`).
+            the database guards (`solubility.databases.reader.check_expression`).
         """
-        from .database import check_expression  # pure text checks; imports no pycalphad
+        from solubility.databases.reader import check_expression  # pure text checks; imports no pycalphad
 
         given = _normalise_parameters(self, parameters or {}, check_expression)
         lines = self._header_lines()
@@ -485,7 +485,7 @@ def _normalise_parameters(
 
 def _check_range_text(text: str, key: str, check_expression: Any) -> None:
     """Run the database guards on every expression of a parameter value (raises InputError)."""
-    from .errors import DatabaseError
+    from solubility.errors import DatabaseError
 
     exprs = [text] if ";" not in text else _range_expressions(text)
     for e in exprs:
@@ -498,7 +498,7 @@ def _check_range_text(text: str, key: str, check_expression: Any) -> None:
 
 
 def _range_expressions(text: str) -> list[str]:
-    from .database import split_ranges
+    from solubility.databases.reader import split_ranges
 
     return split_ranges(text)
 

@@ -4,8 +4,8 @@ Why: pycalphad 0.11.2 checks an expression against an AST whitelist that admits 
 it to SymEngine's own parser (not Python's ``eval``); constant subexpressions are evaluated exactly (``9**9**9``
 took 11 s there), and deep nesting recurses. So every FUNCTION and PARAMETER expression is read here first and
 refused when it is too long, too deep, holds a literal or constant power too large, calls anything but LN, LOG
-or EXP, or names anything with a double underscore. `solubility.database` applies these guards, and
-`solubility.thermo.checked_expressions` applies `check_expression` again to every string pycalphad's reader
+or EXP, or names anything with a double underscore. `solubility.databases.reader` applies these guards, and
+`solubility.thermo.system.checked_expressions` applies `check_expression` again to every string pycalphad's reader
 would evaluate.
 """
 
@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 import re
 
-from .errors import DatabaseError
+from solubility.errors import DatabaseError
 
 __all__ = [
     "ALLOWED_FUNCTIONS",

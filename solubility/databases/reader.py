@@ -31,8 +31,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from .errors import DatabaseError, DatabaseNotFoundError, InputError
-from .tdb_guard import (
+from solubility.databases.guard import (
     MAX_COMMAND_CHARS,
     MAX_EXPRESSION_CHARS,
     MAX_NESTING,
@@ -40,12 +39,13 @@ from .tdb_guard import (
     guard_tdb_text,
     split_ranges,
 )
+from solubility.errors import DatabaseError, DatabaseNotFoundError, InputError
 
 if TYPE_CHECKING:  # pragma: no cover
     from pycalphad import Database
 
-    from .audit import AuditRow
-    from .model import SublatticeModel
+    from solubility.databases.audit import AuditRow
+    from solubility.models.sublattice import SublatticeModel
 
 __all__ = [
     "MAX_COMMAND_CHARS",
@@ -130,7 +130,7 @@ class LoadedDatabase:
 # ------------------------------------------------------------------------------------------------------
 # bundled databases
 def _bundled_dir() -> Path:
-    return Path(__file__).resolve().parent / "databases"
+    return Path(__file__).resolve().parent
 
 
 def bundled_databases() -> list[dict[str, str]]:
@@ -306,7 +306,7 @@ def _parse_text(text: str, label: str) -> tuple[Any, tuple[str, ...]]:
     from pycalphad import Database
     from pyparsing import ParseBaseException
 
-    from .thermo import checked_expressions
+    from solubility.thermo.system import checked_expressions
 
     sink = io.StringIO()
     with checked_expressions(check_expression), warnings.catch_warnings(record=True) as caught, \
@@ -516,7 +516,7 @@ def _copy_database(db: Any) -> Any:
 
 
 def audit_database(spec: Any, *, structure_map: Mapping[str, str] | None = None) -> list[AuditRow]:
-    """Site-ratio audit of every interstitial phase (re-exported from `solubility.audit`)."""
-    from .audit import audit_database as _audit
+    """Site-ratio audit of every interstitial phase (re-exported from `solubility.databases.audit`)."""
+    from solubility.databases.audit import audit_database as _audit
 
     return _audit(spec, structure_map=structure_map)

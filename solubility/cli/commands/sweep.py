@@ -80,11 +80,11 @@ def _summary(ds, seconds: float, resumed: int) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Read the job, run the sweep, write the outputs; 1 if a case failed."""
-    from .._io import check_output_path
-    from ..errors import InputError
-    from ..sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
-    from ..sweeps.assemble import check_netcdf_engine
-    from ._common import emit_json
+    from solubility._io import check_output_path
+    from solubility.cli.commands._common import emit_json
+    from solubility.errors import InputError
+    from solubility.sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
+    from solubility.sweeps.assemble import check_netcdf_engine
 
     if args.resume and not args.store:
         raise InputError("--resume needs --store DIR (the folder of the run to resume)")

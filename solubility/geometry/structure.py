@@ -23,7 +23,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import StructureError
+from solubility.errors import StructureError
 
 __all__ = [
     "BUILTIN_NAMES",

@@ -7,7 +7,7 @@ chemical potentials, every other candidate phase staying below zero. The partner
 from the driving forces of all candidate phases, never assumed.
 
 Numerics. The solute site fraction y enters as s = ln y, and the host's chemical potentials are evaluated from
-its own Gibbs energy at that composition (`solubility.thermo.ThermoSystem.chemical_potentials`), never taken
+its own Gibbs energy at that composition (`solubility.thermo.system.ThermoSystem.chemical_potentials`), never taken
 from a global solver. The boundary condition DF_partner(mu(s)) = 0 is solved by a safeguarded Newton iteration
 in s, so the relative accuracy of the composition is the same at x = 1e-3 and at x = 1e-15. Along a line of
 temperatures each point starts from the last; a change of partner is detected by the check of all candidates
@@ -407,7 +407,7 @@ def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures
     Parameters
     ----------
     system
-        A `solubility.thermo.ThermoSystem` holding every candidate phase.
+        A `solubility.thermo.system.ThermoSystem` holding every candidate phase.
     host
         The host's constitution (`HostModel`).
     candidates
@@ -483,8 +483,8 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
         ``partner_change_T`` along ``change``. A temperature where the host is not stable holds NaN and a
         reason, never a number.
     """
-    from .results import build_dataset, parse_temperatures
-    from .setup import prepare
+    from solubility.calc.inputs import prepare
+    from solubility.results.dataset import build_dataset, parse_temperatures
 
     T = parse_temperatures(temperatures, celsius=celsius)
     job = prepare(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
+from solubility.errors import InputError
 
 __all__ = ["SolvusJob", "check_fix", "host_elements", "host_model", "prepare"]
 
@@ -75,7 +75,7 @@ def _substitutional_elements(species, solute: str) -> tuple[int, list[str]]:
 
 
 def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
-    from .database import check_elements
+    from solubility.databases.reader import check_elements
 
     _, species = ldb.sublattices(phase)
     try:
@@ -120,8 +120,8 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     InputError, DatabaseError
         Any bad value, named in a one-line message.
     """
-    from .database import check_elements, check_phases, load_database
-    from .thermo import filter_candidate_phases, get_system
+    from solubility.databases.reader import check_elements, check_phases, load_database
+    from solubility.thermo.system import filter_candidate_phases, get_system
 
     ldb = load_database(database)
     if not isinstance(phase, str) or not phase.strip():
@@ -161,7 +161,7 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
 
 
 def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str):
-    """The host's constitution as a function of ln(y_solute): a `solubility.boundary.HostModel`.
+    """The host's constitution as a function of ln(y_solute): a `solubility.calc.boundary.HostModel`.
 
     The interstitial sublattice is the one holding VA and the solute (nothing else may be on it among the
     system's elements). Every other sublattice is fixed: one constituent at site fraction 1, or the
@@ -173,7 +173,7 @@ def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balanc
     InputError
         The phase is not of the form (hosts)a(X,VA)c over the chosen elements.
     """
-    from .boundary import HostModel
+    from solubility.calc.boundary import HostModel
 
     pf = system.phases[phase]
     groups = [[int(j) for j in np.flatnonzero(pf.sublattice_of == k)] for k in range(pf.n_sublattices)]

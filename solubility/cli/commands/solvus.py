@@ -18,8 +18,8 @@ import argparse
 import math
 import sys
 
-from ..errors import InputError
-from ._common import emit_json
+from solubility.cli.commands._common import emit_json
+from solubility.errors import InputError
 
 
 def _fix_item(text: str) -> tuple[str, str]:
@@ -69,7 +69,7 @@ def _fix_map(items: list[tuple[str, str]]) -> dict[str, float]:
 
 
 def _outputs(args) -> list[tuple[str, str]]:
-    from .._io import check_output_path
+    from solubility._io import check_output_path
 
     outs = [(kind, path) for kind, path in (("csv", args.csv), ("netcdf", args.netcdf), ("plot", args.plot))
             if path]
@@ -105,8 +105,8 @@ def _table(ds) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from .. import solvus
-    from ..results import solvus_json, write_csv, write_netcdf
+    from solubility import solvus
+    from solubility.results.dataset import solvus_json, write_csv, write_netcdf
 
     try:
         pressure = float(args.pressure)
@@ -121,7 +121,7 @@ def run(args: argparse.Namespace) -> int:
         elif kind == "netcdf":
             write_netcdf(ds, path)
         else:
-            from ..plotting import save_solvus_figure
+            from solubility.results.plotting import save_solvus_figure
 
             save_solvus_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature)
     if args.json:

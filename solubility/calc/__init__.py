@@ -1,0 +1,1 @@
+"""Calculations: validated requests, host primitives, solvus."""

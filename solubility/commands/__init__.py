@@ -1,1 +1,0 @@
-"""Subcommands of the `solubility` command line, one module each (see `solubility.cli`)."""

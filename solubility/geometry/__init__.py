@@ -1,0 +1,1 @@
+"""Geometry: host structures, interstitial sites and misfit (numpy and scipy only)."""

@@ -1,0 +1,1 @@
+"""Models: sublattice models, TDB text and closed forms (no pycalphad)."""

@@ -1,0 +1,1 @@
+"""Results: Datasets, exports and figures."""
