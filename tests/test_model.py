@@ -1,6 +1,7 @@
 """SublatticeModel, its TDB text and the closed forms of `solubility.models.sublattice`.
 
-References: site counts per host atom are textbook crystallography (fcc: 1 octahedral and 2 tetrahedral sites per atom; bcc: 3 octahedral and 6
+References: site counts per host atom are textbook crystallography (fcc: 1 octahedral and 2 tetrahedral sites per
+atom; bcc: 3 octahedral and 6
 tetrahedral; hcp: 1 octahedral and 2 tetrahedral; e.g. Porter, Easterling and Sherif, Phase Transformations in
 Metals and Alloys, 3rd ed., section 2.3; from memory). The site ratios of FCC_A1 1:1, BCC_A2 1:3, HCP_A3 1:0.5
 are those of the SGTE unary data (Dinsdale, Calphad 15 (1991) 317). The closed forms are checked against

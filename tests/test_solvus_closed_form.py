@@ -2,7 +2,8 @@
 
 For an ideal (M)a(X,VA)c solution with end-member energy dG = A + B T against a partner M_p X_q, the boundary
 solves q ln y + (p c / a - q) ln(1 - y) = (dGf - q dG / c) / (R T) exactly
-(`solubility.models.sublattice.dilute_solubility`, itself checked against pycalphad's equilibrium in test_model.py). The systems are built by the tool from
+(`solubility.models.sublattice.dilute_solubility`, itself checked against pycalphad's equilibrium in test_model.py).
+The systems are built by the tool from
 invented ideal data (tests/ideal_systems.py); the temperatures are chosen so that y runs from about 1e-2 down to
 below 1e-12, where pycalphad's own global equilibrium can no longer resolve the composition. Tolerance 1e-6
 relative, the issue's figure; the engine's error is about 1e-10 (the noise of double-precision energies).
