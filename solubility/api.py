@@ -6,6 +6,7 @@ Each function here is thin: the work is done in `solubility.calc` and the Datase
 
 from __future__ import annotations
 
+import json
 from collections.abc import Mapping, Sequence
 
 from solubility.calc.inputs import MAX_TEMPERATURES
@@ -52,7 +53,7 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
         Dims ``T``; variables X (mole fraction), W (mass fraction), PPM (ppm by mass), Y (site fraction of the
         solute on its sublattice), partner, converged, reason, MU (J/mol); partner changes in
         ``partner_change_T`` along ``change``. A temperature where the host is not stable holds NaN and a
-        reason, never a number.
+        reason, never a number. With `parameters`, their values are in the attr ``parameters`` (JSON).
     """
     from solubility.calc import boundary
     from solubility.calc.host import prepare_host
@@ -63,4 +64,7 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
     req = prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
                        parameters=parameters)
     line = boundary.solvus_line(req, T)
-    return build_dataset(line, req)
+    ds = build_dataset(line, req)
+    if req.parameters:  # provenance: the values the free parameters had (JSON, flat attrs)
+        ds.attrs["parameters"] = json.dumps(dict(req.parameters))
+    return ds

@@ -205,6 +205,11 @@ def driving_forces(req: HostRequest, mu: np.ndarray, T: float, *,
     dict of str to `solubility.thermo.phases.DrivingForce`
         J per mole of atoms, > 0 where the phase is more stable, with the optimal constitution. A phase whose
         sampled driving force is below -`REFINE_MARGIN` is reported at its best sample (a lower bound).
+
+    Raises
+    ------
+    FloatingPointError
+        A phase's Gibbs energy is not a finite number (a database fault); the message names the phase.
     """
     names = req.others if phases is None else tuple(phases)
     return refine(req.system, names, mu, T, hints, dict.fromkeys(names, REFINE_MARGIN))
@@ -219,6 +224,11 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
     has one, and from its best sample where no hint is given or the sample beats the hint's optimum. With
     `quick`, when a sample already has a positive driving force (so the host is unstable there whatever
     refinement finds) the samples are returned unrefined.
+
+    Raises
+    ------
+    FloatingPointError
+        A phase's Gibbs energy is not a finite number at some sample or at its optimum.
     """
     def sampled(phase: str, value: float, y: np.ndarray) -> DrivingForce:
         n = system.phases[phase].moles @ y
@@ -226,6 +236,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
 
     hints = hints or {}
     screened = system.screen(mu, T, phases)
+    _check_finite(screened.items(), T)
     if quick and max(v for v, _ in screened.values()) > 0:
         return {phase: sampled(phase, value, y) for phase, (value, y) in screened.items()}
     out = {}
@@ -239,9 +250,18 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
             alt = system.driving_force(phase, mu, T, y_best)
             if alt.value > best.value:
                 best = alt
+        _check_finite([(phase, (best.value, best.y))], T)
         margins[phase] = max(margins[phase], 20.0 * (best.value - value))
         out[phase] = best
     return out
+
+
+def _check_finite(items, T: float) -> None:
+    """Raise FloatingPointError naming the first phase whose driving force is not a finite number (a NaN or
+    infinite Gibbs energy: a database fault such as LN of a negative number), so the point fails, never passes."""
+    for phase, (value, _) in items:
+        if not math.isfinite(value):
+            raise FloatingPointError(f"the Gibbs energy of {phase} is not a finite number at T = {T:g} K")
 
 
 def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str) -> HostModel:

@@ -168,9 +168,9 @@ def maximise_phi(
     -------
     y, converged
         The optimum, and whether it is one: converged means a full Newton step with a Newton decrement below
-        1e-10 J/mol in the quadratic regime, or a step (full or shortened by the line search) that no longer
-        moves y: a plain Newton step, or any step at a reduced gradient below 1e-6 max(1, |phi|) J/mol per unit
-        fraction (a line search that shortens the step near a non-optimal point is not convergence).
+        1e-10 J/mol in the quadratic regime, or a step that no longer moves y (or no ascent at all) at a reduced
+        gradient below 1e-6 max(1, |phi|) J/mol per unit fraction: a step that stalls away from a stationary
+        point (shortened by the line search, or tiny because the curvature is wrong) is not convergence.
     """
     ns = int(sublattice_of.max()) + 1
     ny = y0.size
@@ -218,5 +218,5 @@ def maximise_phi(
         rel = float(np.max(np.abs(y_new - y) / np.maximum(y, Y_FLOOR)))
         y = y_new
         if rel < 1e-12:  # y no longer moves: an optimum only where the reduced gradient is small
-            return y, small_gradient or (alpha == 1.0 and shift == 0.0)
+            return y, small_gradient
     return y, False

@@ -114,13 +114,15 @@ class CompiledSystem:
         comps = sorted({*elements, "VA"})
         names = sorted({str(p) for p in parameters})
         start = dict.fromkeys(names, 0.0)
+        if names:
+            _check_parameter_names(db, phases, names)
         try:
             models = instantiate_models(db, comps, list(phases), model=_exact_mixing_model(), parameters=start,
                                         symbols_only=True)
             self._prf = PhaseRecordFactory(db, comps, {v.N, v.P, v.T}, models, parameters=start)
         except Exception as exc:  # pycalphad raises a variety of errors for inconsistent databases
             raise DatabaseError(f"pycalphad could not build models for phases {sorted(phases)}: {exc}") from exc
-        if names:
+        if names:  # a symbol of the database that no chosen phase uses
             used = {str(sym) for m in models.values() for sym in m.GM.free_symbols}
             unused = [n for n in names if n not in used]
             if unused:
@@ -167,6 +169,18 @@ class CompiledSystem:
             rec.parameters = values
             records[name] = rec
         return records
+
+
+def _check_parameter_names(db, phases: Sequence[str], names: Sequence[str]) -> None:
+    """Refuse names that are neither a symbol (FUNCTION) of `db` nor a free symbol of a parameter of `phases`."""
+    known = {str(k) for k in db.symbols}
+    for p in db._parameters.all():
+        if p["phase_name"] in phases:
+            known.update(str(sym) for sym in getattr(p["parameter"], "free_symbols", ()))
+    unknown = [n for n in names if n not in known]
+    if unknown:
+        raise InputError(f"parameter {', '.join(unknown)} is neither a FUNCTION of the database nor a symbol in "
+                         f"a parameter of {', '.join(sorted(phases))}")
 
 
 class BoundSystem:
@@ -277,15 +291,17 @@ class BoundSystem:
     def screen(self, mu: np.ndarray, T: float, phases: Sequence[str]) -> dict[str, tuple[float, np.ndarray]]:
         """Best sampled driving force (J per mole of atoms) and its constitution, for each phase.
 
-        Samples whose energy is not a finite number are skipped; a phase without any finite sample gets
-        ``-inf`` (take it as not evaluable, never as stable).
+        A phase with any sample whose energy is not a finite number gets NaN (its driving force is unknown; the
+        caller must not take it as stable or as unstable).
         """
         result = {}
         for name in phases:
             pf = self.phases[name]
             gm = self.gibbs_per_atom_samples(name, T)
             df = pf.sample_x @ mu - gm
-            df[~np.isfinite(df)] = -np.inf
+            if not np.all(np.isfinite(df)):
+                result[name] = (float("nan"), pf.samples[0].copy())
+                continue
             k = int(np.argmax(df))
             result[name] = (float(df[k]), pf.samples[k].copy())
         return result
