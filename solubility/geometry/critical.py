@@ -14,7 +14,8 @@ import numpy as np
 from scipy.spatial import ConvexHull, Delaunay, QhullError, cKDTree
 
 from solubility.errors import StructureError
-from solubility.geometry.structure import Structure, cell_diagonal, periodic_images
+from solubility.geometry.lattice import cell_diagonal, periodic_images
+from solubility.geometry.structure import Structure
 
 __all__ = [
     "DIST_TOL",

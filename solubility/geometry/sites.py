@@ -54,6 +54,7 @@ import numpy as np
 
 from solubility.errors import InputError
 from solubility.geometry.critical import Block, Site, candidate_points, critical_point_at, find_cage, make_site
+from solubility.geometry.limits import check_length
 from solubility.geometry.structure import Structure, is_positive_number
 
 __all__ = ["SIZE_RULE_LIMIT", "Misfit", "SiteFamily", "find_sites", "misfit"]
@@ -298,13 +299,13 @@ def misfit(
     Raises
     ------
     InputError
-        A value that is not a finite number > 0, a hole radius <= 0, or a family without absolute scale.
+        A value that is not a finite number > 0, a length outside `geometry.limits` (1e-3 to 1e3 Å), a hole
+        radius <= 0, or a family without absolute scale.
     """
-    if _check_positive(solute_radius, "solute radius", "Å") is None:
-        raise InputError("solute radius None is not accepted; expected a finite number of Å > 0")
+    solute_radius = check_length(solute_radius, "solute radius", error=InputError)
     mu = _check_positive(shear_modulus, "shear modulus", "Pa")
     K = _check_positive(solute_bulk_modulus, "solute bulk modulus", "Pa")
-    R = _check_positive(host_radius, "host radius", "Å")
+    R = None if host_radius is None else check_length(host_radius, "host radius", error=InputError)
     if isinstance(family_or_radius, SiteFamily):
         if not family_or_radius.absolute_scale:
             raise InputError("the site family has no absolute scale; give a lattice parameter or host radius")
@@ -313,8 +314,7 @@ def misfit(
             R = r / family_or_radius.radius_ratio
     else:
         r = family_or_radius
-    if not is_positive_number(r):
-        raise InputError(f"hole radius {r!r} is not accepted; expected a finite number of Å > 0")
+    r = check_length(r, "hole radius", error=InputError)
     eps = (float(solute_radius) - r) / r
     size_ratio = None if R is None else float(solute_radius) / R
     fits = None if size_ratio is None else size_ratio < SIZE_RULE_LIMIT
