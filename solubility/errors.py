@@ -17,6 +17,7 @@ __all__ = [
     "SolubilityError",
     "SolubilityWarning",
     "StructureError",
+    "Terminated",
     "UndefinedFunctionWarning",
 ]
 
@@ -59,3 +60,7 @@ class SolubilityWarning(UserWarning):
 
 class UndefinedFunctionWarning(SolubilityWarning):
     """A database uses FUNCTIONs it never defines; pycalphad takes each as zero (the message names them)."""
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM arrived while outputs were being written (`solubility._io.atomic_outputs`): handled as Ctrl-C."""

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Mapping
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from solubility.databases.pycalphad_io import copy_database
 from solubility.databases.reader import LoadedDatabase, _make_loaded, _parse_text, element_data, load_database

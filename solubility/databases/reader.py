@@ -60,6 +60,7 @@ __all__ = [
     "check_phases",
     "check_species",
     "components_for",
+    "database_path",
     "element_data",
     "guard_tdb_text",
     "load_database",
@@ -189,6 +190,17 @@ def _resolve(spec: str | os.PathLike) -> tuple[Path, str]:
         f"database {str(text)[:200]!r} is neither an existing file nor a bundled database "
         f"({', '.join(names)}){hint}"
     )
+
+
+def database_path(spec: str | os.PathLike) -> Path | None:
+    """The file `load_database(spec)` would read (a path or a bundled name), or None where there is none.
+
+    For output checks (`solubility._io.check_outputs`): an output must never replace a command's database.
+    """
+    try:
+        return _resolve(spec)[0]
+    except DatabaseError:
+        return None
 
 
 def load_database(spec: str | os.PathLike | Database, *, max_bytes: int = MAX_FILE_BYTES) -> LoadedDatabase:
