@@ -138,8 +138,8 @@ def main(argv=None) -> int:
             ref_script = Path(tmp) / "cold_reference.py"
             ref_script.write_text(
                 "from pycalphad import Database, equilibrium, variables as v\n"
-                "from solubility.databases.reader import _bundled_path\n"
-                "db = Database(str(_bundled_path('fe-c')))\n"
+                "from solubility.databases.bundled import bundled_path\n"
+                "db = Database(str(bundled_path('fe-c')))\n"
                 "phases = [p for p in db.phases if p not in ('GRAPHITE', 'DIAMOND_A4')]\n"
                 "equilibrium(db, ['C', 'FE', 'VA'], phases, {v.T: 800, v.P: 101325, v.N: 1, v.X('C'): 0.01})\n"
             )

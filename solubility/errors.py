@@ -15,7 +15,10 @@ __all__ = [
     "JobError",
     "OutputError",
     "SolubilityError",
+    "SolubilityWarning",
     "StructureError",
+    "Terminated",
+    "UndefinedFunctionWarning",
 ]
 
 
@@ -49,3 +52,15 @@ class OutputError(SolubilityError, OSError):
 
 class ConvergenceError(SolubilityError, RuntimeError):
     """A calculation did not converge where a result was required (points in a line are flagged instead)."""
+
+
+class SolubilityWarning(UserWarning):
+    """Base class of every warning issued by `solubility` (filter them with this class)."""
+
+
+class UndefinedFunctionWarning(SolubilityWarning):
+    """A database uses FUNCTIONs it never defines; pycalphad takes each as zero (the message names them)."""
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM arrived while outputs were being written (`solubility._io.atomic_outputs`): handled as Ctrl-C."""

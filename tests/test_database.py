@@ -16,10 +16,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from solubility.databases.bundled import bundled_databases
+from solubility.databases.extend import add_model
 from solubility.databases.reader import (
     LoadedDatabase,
-    add_model,
-    bundled_databases,
     check_elements,
     check_phases,
     check_species,

@@ -19,7 +19,8 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from solubility.errors import InputError, StructureError
-from solubility.geometry.sites import DIST_TOL, SIZE_RULE_LIMIT, SiteFamily, find_sites, misfit
+from solubility.geometry.critical import DIST_TOL
+from solubility.geometry.sites import SIZE_RULE_LIMIT, SiteFamily, find_sites, misfit
 from solubility.geometry.structure import Structure, builtin_structure
 
 TOL = 1e-9

@@ -5,8 +5,8 @@ it to SymEngine's own parser (not Python's ``eval``); constant subexpressions ar
 took 11 s there), and deep nesting recurses. So every FUNCTION and PARAMETER expression is read here first and
 refused when it is too long, too deep, holds a literal or constant power too large, calls anything but LN, LOG
 or EXP, or names anything with a double underscore. `solubility.databases.reader` applies these guards, and
-`solubility.thermo.system.checked_expressions` applies `check_expression` again to every string pycalphad's reader
-would evaluate.
+`solubility.databases.pycalphad_io` applies `check_expression` again to every string pycalphad's reader would
+evaluate.
 """
 
 from __future__ import annotations

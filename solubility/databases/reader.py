@@ -11,26 +11,30 @@ then refused by SymEngine as an unknown token; no code runs). No path to Python 
 constant subexpressions are evaluated exactly (pycalphad took 11 s on ``9**9**9`` here), and deep nesting
 reaches Python's recursion limits; the guards refuse both, and anything that looks like a Python call.
 
+After the parse, faults pycalphad reads without a word are looked for (`solubility.databases.pycalphad_io`):
+a PHASE declared twice and a PARAMETER given twice are refused with their line, a FUNCTION that refers to itself
+(directly or through others) is refused, and FUNCTIONs referenced but never defined (pycalphad takes them as
+zero) are warned about (`UndefinedFunctionWarning`) and recorded in `LoadedDatabase.undefined_functions`.
+Text written on other systems reads as pycalphad reads a file: CRLF and CR line ends, a UTF-8 byte-order mark.
+
 Parsed Databases are cached in-process per (resolved path, sha256): parsing a TDB costs seconds.
-pycalphad is imported inside the functions that need it.
+pycalphad is imported inside the functions that need it. The bundled databases are listed by
+`solubility.databases.bundled`; `solubility.databases.extend.add_model` adds a model's phase to a copy.
 """
 
 from __future__ import annotations
 
-import contextlib
-import copy
 import difflib
 import hashlib
-import io
-import json
 import os
 import threading
 import warnings
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from solubility.databases.bundled import bundled_databases, bundled_path
 from solubility.databases.guard import (
     MAX_COMMAND_CHARS,
     MAX_EXPRESSION_CHARS,
@@ -39,13 +43,11 @@ from solubility.databases.guard import (
     guard_tdb_text,
     split_ranges,
 )
-from solubility.errors import DatabaseError, DatabaseNotFoundError, InputError
+from solubility.databases.pycalphad_io import function_faults, parse_tdb
+from solubility.errors import DatabaseError, DatabaseNotFoundError, InputError, UndefinedFunctionWarning
 
 if TYPE_CHECKING:  # pragma: no cover
     from pycalphad import Database
-
-    from solubility.databases.audit import AuditRow
-    from solubility.models.sublattice import SublatticeModel
 
 __all__ = [
     "MAX_COMMAND_CHARS",
@@ -53,14 +55,12 @@ __all__ = [
     "MAX_FILE_BYTES",
     "MAX_NESTING",
     "LoadedDatabase",
-    "add_model",
-    "audit_database",
-    "bundled_databases",
     "check_elements",
     "check_expression",
     "check_phases",
     "check_species",
     "components_for",
+    "database_path",
     "element_data",
     "guard_tdb_text",
     "load_database",
@@ -69,7 +69,6 @@ __all__ = [
 
 #: largest database file read, bytes (the largest open TDB files are a few MB; pycalphad parses ~0.1 MB/s)
 MAX_FILE_BYTES = 16 * 1024 * 1024
-_INDEX_FILE = "index.json"
 _CACHE: dict[tuple[str, str], LoadedDatabase] = {}
 _CACHE_LOCK = threading.Lock()
 
@@ -94,6 +93,9 @@ class LoadedDatabase:
         Sorted upper-case names (VA and the electron gas ``/-`` included among elements where declared).
     warnings
         Messages pycalphad's parser warned about while reading (kept, not shown).
+    undefined_functions
+        Names used in expressions but never defined as FUNCTIONs (pycalphad takes them as zero), sorted; callers
+        put them in a result's attrs.
     """
 
     db: Database
@@ -103,6 +105,7 @@ class LoadedDatabase:
     elements: tuple[str, ...]
     phases: tuple[str, ...]
     warnings: tuple[str, ...] = field(default=(), compare=False)
+    undefined_functions: tuple[str, ...] = field(default=(), compare=False)
 
     def sublattices(self, phase: str) -> tuple[tuple[float, ...], tuple[tuple[str, ...], ...]]:
         """Site ratios and the sorted species names on each sublattice of `phase`."""
@@ -125,36 +128,6 @@ class LoadedDatabase:
             "elements": list(self.elements),
             "phases": phases,
         }
-
-
-# ------------------------------------------------------------------------------------------------------
-# bundled databases
-def _bundled_dir() -> Path:
-    return Path(__file__).resolve().parent
-
-
-def bundled_databases() -> list[dict[str, str]]:
-    """The open databases shipped with the tool.
-
-    Returns
-    -------
-    list of dict
-        One per database: ``name``, ``file``, ``description``, ``citation``, ``licence``, ``source``,
-        ``changes`` and ``sha256`` (of the bundled file), in the order of ``databases/index.json``.
-    """
-    index = _bundled_dir() / _INDEX_FILE
-    try:
-        entries = json.loads(index.read_text(encoding="utf-8"))
-    except (OSError, ValueError) as exc:
-        raise DatabaseError(f"the index of bundled databases {str(index)!r} cannot be read: {exc}") from None
-    return [dict(e) for e in entries]
-
-
-def _bundled_path(name: str) -> Path | None:
-    for entry in bundled_databases():
-        if entry["name"].lower() == name.strip().lower() or entry["file"].lower() == name.strip().lower():
-            return _bundled_dir() / entry["file"]
-    return None
 
 
 # ------------------------------------------------------------------------------------------------------
@@ -183,9 +156,11 @@ def _decode(data: bytes, label: str) -> str:
     if b"\x00" in data:
         raise DatabaseError(f"database {label!r} is a binary file (NUL bytes), not TDB text")
     try:
-        text = data.decode("utf-8")
+        text = data.decode("utf-8-sig")  # a byte-order mark, as Windows editors write, is dropped
     except UnicodeDecodeError:
         text = data.decode("latin-1")
+    # line ends as Python's text mode reads them (pycalphad's Database(path) opens files so): CRLF and CR -> LF
+    text = text.replace("\r\n", "\n").replace("\r", "\n")
     control = sum(1 for ch in text if ord(ch) < 32 and ch not in "\t\n\r\f\v")
     if control > max(8, len(text) // 100):
         raise DatabaseError(f"database {label!r} looks binary ({control} control characters), not TDB text")
@@ -205,7 +180,7 @@ def _resolve(spec: str | os.PathLike) -> tuple[Path, str]:
         exists = False
     if exists:  # an existing path wins over a bundled name
         return path.resolve(), path.name
-    bundled = _bundled_path(str(text))
+    bundled = bundled_path(str(text))
     if bundled is not None:
         return bundled.resolve(), str(text).strip().lower()
     names = [e["name"] for e in bundled_databases()]
@@ -215,6 +190,17 @@ def _resolve(spec: str | os.PathLike) -> tuple[Path, str]:
         f"database {str(text)[:200]!r} is neither an existing file nor a bundled database "
         f"({', '.join(names)}){hint}"
     )
+
+
+def database_path(spec: str | os.PathLike) -> Path | None:
+    """The file `load_database(spec)` would read (a path or a bundled name), or None where there is none.
+
+    For output checks (`solubility._io.check_outputs`): an output must never replace a command's database.
+    """
+    try:
+        return _resolve(spec)[0]
+    except DatabaseError:
+        return None
 
 
 def load_database(spec: str | os.PathLike | Database, *, max_bytes: int = MAX_FILE_BYTES) -> LoadedDatabase:
@@ -276,6 +262,7 @@ def _make_loaded(
     db: Any, name: str, path: Path | None, digest: str | None, messages: Sequence[str]
 ) -> LoadedDatabase:
     _check_parsed(db, name)
+    undefined = _check_functions(db, name)
     return LoadedDatabase(
         db=db,
         name=name,
@@ -284,6 +271,7 @@ def _make_loaded(
         elements=tuple(sorted(str(e).upper() for e in db.elements)),
         phases=tuple(sorted(db.phases)),
         warnings=tuple(messages),
+        undefined_functions=tuple(undefined),
     )
 
 
@@ -303,80 +291,27 @@ def _check_parsed(db: Any, name: str) -> None:
 def _parse_text(text: str, label: str) -> tuple[Any, tuple[str, ...]]:
     """Guard, then parse TDB text with pycalphad; every failure becomes a DatabaseError naming `label`."""
     guard_tdb_text(text, source=label)
-    from pycalphad import Database
-    from pyparsing import ParseBaseException
-
-    from solubility.thermo.system import checked_expressions
-
-    sink = io.StringIO()
-    with checked_expressions(check_expression), warnings.catch_warnings(record=True) as caught, \
-            contextlib.redirect_stdout(sink):
-        warnings.simplefilter("always")
-        try:
-            db = Database.from_string(text, fmt="tdb")
-        except ParseBaseException as exc:
-            line = getattr(exc, "lineno", None)
-            where = f", line {line}" if line else ""
-            raise DatabaseError(f"{label}{where}: invalid TDB syntax near {_context(exc)!r}") from None
-        except RecursionError:
-            raise DatabaseError(f"{label}: an expression is nested too deeply to parse") from None
-        except MemoryError:
-            raise DatabaseError(f"{label}: not enough memory to parse the database") from None
-        except Exception as exc:
-            line = _failing_line(exc, text)
-            where = f", line {line}" if line else ""
-            if isinstance(exc, DatabaseError):  # from the expression hook
-                raise DatabaseError(f"{label}{where}: {exc}") from None
-            raise DatabaseError(
-                f"{label}{where}: cannot be read ({type(exc).__name__}: {_short(exc)})"
-            ) from None
-    messages = [str(w.message) for w in caught] + [s for s in sink.getvalue().splitlines() if s.strip()]
-    return db, tuple(messages)
+    return parse_tdb(text, label)
 
 
-def _context(exc: Any) -> str:
-    """The start of the command pycalphad could not parse (its message holds it on the second line)."""
-    lines = [ln.strip() for ln in str(getattr(exc, "msg", "")).splitlines() if ln.strip()]
-    text = lines[1] if len(lines) > 1 else (lines[0] if lines else "")
-    return text[:60] + ("..." if len(text) > 60 else "")
-
-
-def _first_line(text: str) -> str:
-    return str(text).strip().splitlines()[0] if str(text).strip() else "no detail"
-
-
-def _short(exc: BaseException) -> str:
-    text = _first_line(str(exc)) if str(exc) else "no detail"
-    return text[:160]
-
-
-def _failing_line(exc: BaseException, text: str) -> int | None:
-    """Line of the command pycalphad's reader was processing when `exc` was raised, where it can be found."""
-    tb = exc.__traceback__
-    char_idx = None
-    while tb is not None:
-        frame = tb.tb_frame
-        if frame.f_code.co_name == "read_tdb" and "char_idx" in frame.f_locals:
-            char_idx = frame.f_locals["char_idx"]
-        tb = tb.tb_next
-    if not isinstance(char_idx, int):
-        return None
-    # pycalphad keeps each line up to its first '!' (comments cut), joins them with one space, and counts
-    # char_idx in that string up to the start of the failing command
-    bodies = []
-    for line in text.upper().replace("\t", " ").split("\n"):
-        body = line.split("$", 1)[0]
-        bodies.append(body.split("!")[0] + ("!" if len(body.split("!")) > 1 else ""))
-    joined = " ".join(bodies)
-    idx = char_idx
-    while idx < len(joined) and joined[idx].isspace():
-        idx += 1
-    pos = 0
-    for lineno, body in enumerate(bodies, start=1):
-        pos += len(body) + 1
-        if pos > idx:
-            return lineno
-    return None
+def _check_functions(db: Any, label: str) -> tuple[str, ...]:
+    """Refuse a FUNCTION cycle; warn once about FUNCTIONs referenced but never defined. Returns those names."""
+    undefined, cycle = function_faults(db)
+    if cycle is not None:
+        chain = " -> ".join(cycle)
+        what = "refers to itself" if len(cycle) == 2 else f"refers to itself through {chain}"
+        raise DatabaseError(f"{label}: FUNCTION {cycle[0]} {what}; pycalphad would take it as zero")
+    if undefined:
+        shown = "; ".join(f"{k} (used by {', '.join(v[:3])}{', ...' if len(v) > 3 else ''})"
+                          for k, v in list(undefined.items())[:10])
+        more = f" and {len(undefined) - 10} more" if len(undefined) > 10 else ""
+        warnings.warn(
+            f"{label}: FUNCTION{'s' if len(undefined) > 1 else ''} never defined, taken as zero by pycalphad: "
+            f"{shown}{more}",
+            UndefinedFunctionWarning,
+            stacklevel=5,
+        )
+    return tuple(undefined)
 
 
 # ------------------------------------------------------------------------------------------------------
@@ -452,71 +387,3 @@ def element_data(ldb: LoadedDatabase, names: Iterable[str]) -> dict[str, tuple[s
             float(ref.get("S298", 0.0)),
         )
     return out
-
-
-# ------------------------------------------------------------------------------------------------------
-# adding a model
-def add_model(
-    spec: str | os.PathLike | Database | LoadedDatabase,
-    model: SublatticeModel,
-    parameters: Mapping[str, str] | None = None,
-) -> LoadedDatabase:
-    """A copy of a database with the phase of `model` added (the original and the cache are untouched).
-
-    Parameters
-    ----------
-    spec
-        The database to extend (anything `load_database` takes, or a LoadedDatabase).
-    model
-        The interstitial phase; its elements must be in the database.
-    parameters
-        As in `SublatticeModel.tdb_block`; expressions may use the database's FUNCTIONs (``GHSERFE#``).
-
-    Raises
-    ------
-    DatabaseError
-        The phase exists already in the database, or an element of the model is missing.
-    """
-    base = spec if isinstance(spec, LoadedDatabase) else load_database(spec)
-    if model.phase in base.db.phases:
-        raise DatabaseError(
-            f"phase {model.phase!r} exists already in database {base.name!r}; give another name"
-        )
-    elements = element_data(base, [*model.hosts, *model.interstitials])
-    text = model.tdb_block(parameters, elements=elements)
-    tmp, messages = _parse_text(text, f"model {model.phase}")
-    db = _copy_database(base.db)
-    phase = tmp.phases[model.phase]
-    db.add_phase(model.phase, dict(phase.model_hints), list(phase.sublattices))
-    db.add_phase_constituents(model.phase, [[sp.name for sp in subl] for subl in phase.constituents])
-    from tinydb import where
-
-    for p in tmp.search(where("phase_name") == model.phase):
-        db.add_parameter(
-            p["parameter_type"],
-            p["phase_name"],
-            [[sp.name for sp in subl] for subl in p["constituent_array"]],
-            p["parameter_order"],
-            p["parameter"],
-            ref=p.get("reference"),
-            diffusing_species=getattr(p.get("diffusing_species"), "name", None),
-            force_insert=True,
-        )
-    return _make_loaded(db, f"{base.name}+{model.phase}", None, None, (*base.warnings, *messages))
-
-
-def _copy_database(db: Any) -> Any:
-    """A copy safe to extend: pycalphad 0.11.2's ``Database.__deepcopy__`` copies only the parameter table and
-    shares ``phases``, ``symbols``, ``species`` ... with the original, so those containers are copied here."""
-    new = copy.deepcopy(db)
-    for key, value in list(vars(new).items()):
-        if isinstance(value, dict | set | list):
-            setattr(new, key, copy.copy(value))
-    return new
-
-
-def audit_database(spec: Any, *, structure_map: Mapping[str, str] | None = None) -> list[AuditRow]:
-    """Site-ratio audit of every interstitial phase (re-exported from `solubility.databases.audit`)."""
-    from solubility.databases.audit import audit_database as _audit
-
-    return _audit(spec, structure_map=structure_map)

@@ -24,6 +24,8 @@ from typing import Any
 import numpy as np
 
 from solubility.errors import StructureError
+from solubility.geometry.lattice import SHIFTS, nearest_neighbour_distance
+from solubility.geometry.limits import check_atom_count, check_c_over_a, check_lattice, check_length
 
 __all__ = [
     "BUILTIN_NAMES",
@@ -44,60 +46,6 @@ MIN_SEPARATION_FRACTION = 0.05
 
 #: a lattice whose |det| is below this fraction of the product of its vector lengths is singular
 SINGULAR_FRACTION = 1e-6
-
-
-#: the 27 neighbouring cell translations
-_SHIFTS = np.stack(np.meshgrid(*[np.arange(-1, 2)] * 3, indexing="ij"), -1).reshape(-1, 3)
-
-
-def _image_ranges(lattice: np.ndarray, radius: float) -> list[np.ndarray]:
-    """Integer translations per axis so that every point within `radius` (Å) of the home cell is covered.
-
-    Moving a Cartesian distance ρ changes fractional coordinate i by at most ρ |b_i| (b_i = reciprocal vector
-    without the 2π), so ``ceil(radius |b_i|)`` extra cells on each side suffice.
-    """
-    recip = np.linalg.inv(lattice).T
-    n = np.ceil(radius * np.linalg.norm(recip, axis=1)).astype(int)
-    return [np.arange(-k, k + 1) for k in n]
-
-
-def cell_diagonal(lattice: np.ndarray) -> float:
-    """Longest body diagonal |±a1 ± a2 + a3| of the cell (Å); any point lies within half of it of each atom's
-    nearest periodic image."""
-    signs = np.array([[1, 1, 1], [1, -1, 1], [-1, 1, 1], [-1, -1, 1]], dtype=float)
-    return float(np.max(np.linalg.norm(signs @ lattice, axis=1)))
-
-
-def periodic_images(
-    lattice: np.ndarray, basis: np.ndarray, radius: float
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Cartesian positions of all periodic images within about `radius` (Å) of the home cell.
-
-    Returns
-    -------
-    positions : (N, 3) Å
-    atom_index : (N,) index of the basis atom each image belongs to
-    translation : (N, 3) integer cell translation of each image
-    """
-    ranges = _image_ranges(lattice, radius)
-    grid = np.stack(np.meshgrid(*ranges, indexing="ij"), axis=-1).reshape(-1, 3)
-    frac = (grid[:, None, :] + basis[None, :, :]).reshape(-1, 3)
-    atom_index = np.tile(np.arange(len(basis)), len(grid))
-    translation = np.repeat(grid, len(basis), axis=0)
-    return frac @ lattice, atom_index, translation
-
-
-def _nearest_neighbour_distance(lattice: np.ndarray, basis: np.ndarray) -> float:
-    """Shortest distance (Å) between two distinct atoms of the periodic structure."""
-    # every atom has a neighbour within D/2 (D = longest diagonal), so images within D cover all candidates
-    pos, idx, trans = periodic_images(lattice, basis, cell_diagonal(lattice))
-    home = basis @ lattice
-    best = math.inf
-    for i, p in enumerate(home):
-        d = np.linalg.norm(pos - p, axis=1)
-        self_image = (idx == i) & np.all(trans == 0, axis=1)
-        best = min(best, float(np.min(d[~self_image])))
-    return best
 
 
 def _as_float_array(value: Any, shape_text: str, what: str) -> np.ndarray:
@@ -158,6 +106,7 @@ class Structure:
         lattice = _as_float_array(self.lattice, "3 lattice vectors of 3 numbers (Å)", "lattice")
         if lattice.shape != (3, 3):
             raise StructureError(f"lattice has shape {lattice.shape}; expected 3 vectors of 3 numbers (Å)")
+        check_lattice(lattice)  # lengths, angles, aspect ratio (geometry.limits); before any product overflows
         lengths = np.linalg.norm(lattice, axis=1)
         det = float(np.linalg.det(lattice))
         if np.any(lengths == 0) or abs(det) < SINGULAR_FRACTION * float(np.prod(lengths)):
@@ -170,6 +119,7 @@ class Structure:
             raise StructureError("the basis is empty; give at least one host atom position")
         if basis.ndim != 2 or basis.shape[1] != 3:
             raise StructureError(f"basis has shape {basis.shape}; expected positions of 3 fractional numbers")
+        check_atom_count(len(basis))
         basis = basis - np.floor(basis)
         basis[basis >= 1.0] = 0.0
         species = tuple(self.species) if self.species else ("M",) * len(basis)
@@ -178,16 +128,14 @@ class Structure:
                 f"species {list(species)!r} must be {len(basis)} non-empty labels, one per basis atom"
             )
         if self.given_host_radius is not None:
-            r = self.given_host_radius
-            if not is_positive_number(r):
-                raise StructureError(f"host radius {r!r} must be a finite number of Å greater than zero")
+            check_length(self.given_host_radius, "host radius")
         self._check_overlap(lattice, basis, abs(det))
         lattice.setflags(write=False)
         basis.setflags(write=False)
         object.__setattr__(self, "lattice", lattice)
         object.__setattr__(self, "basis", basis)
         object.__setattr__(self, "species", species)
-        object.__setattr__(self, "_nn", _nearest_neighbour_distance(lattice, basis))
+        object.__setattr__(self, "_nn", nearest_neighbour_distance(lattice, basis))
 
     @staticmethod
     def _check_overlap(lattice: np.ndarray, basis: np.ndarray, volume: float) -> None:
@@ -196,7 +144,7 @@ class Structure:
             for j in range(i + 1, len(basis)):
                 diff = basis[j] - basis[i]
                 diff -= np.round(diff)
-                d = float(np.min(np.linalg.norm((diff + _SHIFTS) @ lattice, axis=1)))
+                d = float(np.min(np.linalg.norm((diff + SHIFTS) @ lattice, axis=1)))
                 if d < limit:
                     raise StructureError(
                         f"atoms {i + 1} at {basis[i].tolist()} and {j + 1} at {basis[j].tolist()} overlap "
@@ -294,17 +242,17 @@ def builtin_structure(
         raise StructureError(f"unknown built-in structure {name!r}; choose one of {', '.join(BUILTIN_NAMES)}")
     if c_over_a is not None and key != "hcp":
         raise StructureError(f"c/a = {c_over_a!r} applies to hcp only, not to {key}")
-    ratio = IDEAL_C_OVER_A if c_over_a is None else _positive(c_over_a, "c/a", "a finite number > 0")
+    ratio = IDEAL_C_OVER_A if c_over_a is None else check_c_over_a(c_over_a)
     lattice, basis = _builtin_cell(key, ratio)
     unit = Structure(key, lattice, basis, absolute_scale=False)
     if lattice_parameter is not None:
-        a = _positive(lattice_parameter, "lattice parameter", "a finite number of Å > 0")
+        a = check_length(lattice_parameter, "lattice parameter")
     elif host_radius is not None:
-        r = _positive(host_radius, "host radius", "a finite number of Å > 0")
+        r = check_length(host_radius, "host radius")
         a = 2.0 * r / unit.nearest_neighbour_distance
     else:
         return unit
-    given = None if host_radius is None else _positive(host_radius, "host radius", "a finite number of Å > 0")
+    given = None if host_radius is None else check_length(host_radius, "host radius")
     return Structure(key, lattice * a, basis, given_host_radius=given)
 
 
@@ -317,6 +265,8 @@ def _cell_to_lattice(cell: Any, path: str) -> np.ndarray:
     if not isinstance(cell, dict) or set(cell) != _CELL_KEYS:
         raise StructureError(f"{path}: 'cell' must have exactly the keys a, b, c, alpha, beta, gamma")
     vals = {k: _positive(cell[k], f"{path}: cell {k}", "a finite number > 0") for k in _CELL_KEYS}
+    for k in "abc":
+        check_length(vals[k], f"{path}: cell {k}")
     for k in ("alpha", "beta", "gamma"):
         if not 0 < vals[k] < 180:
             raise StructureError(f"{path}: cell {k} = {vals[k]} degrees is impossible; give 0 < angle < 180")
@@ -419,5 +369,5 @@ def load_structure(
     s = read_structure(p)
     if host_radius is None:
         return s
-    r = _positive(host_radius, "host radius", "a finite number of Å > 0")
+    r = check_length(host_radius, "host radius")
     return Structure(s.name, s.lattice.copy(), s.basis.copy(), s.species, given_host_radius=r)

@@ -26,12 +26,11 @@ afterwards costs microseconds.
 
 from __future__ import annotations
 
-import contextlib
 import functools
 import hashlib
 import threading
 from collections import OrderedDict
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 
 import numpy as np
 
@@ -46,7 +45,6 @@ __all__ = [
     "DrivingForce",
     "PhaseFunctions",
     "cache_info",
-    "checked_expressions",
     "clear_cache",
     "compiled_system",
     "database_digest",
@@ -362,7 +360,6 @@ def _exact_mixing_model():
 # ---------------------------------------------------------------------- per-process cache
 _CACHE: OrderedDict[tuple, CompiledSystem] = OrderedDict()
 _CACHE_LOCK = threading.Lock()
-_PARSE_LOCK = threading.Lock()
 _STATS = {"builds": 0, "hits": 0}
 
 
@@ -405,33 +402,3 @@ def clear_cache() -> None:
     """Forget every compiled system (the counters stay)."""
     with _CACHE_LOCK:
         _CACHE.clear()
-
-
-@contextlib.contextmanager
-def checked_expressions(check: Callable[[str], None]) -> Iterator[None]:
-    """While pycalphad parses, run `check` on every string its reader hands to SymEngine.
-
-    Defence in depth behind `solubility.databases.guard.guard_tdb_text`, which finds the expressions by reading the
-    text itself: here the reader's own expression function (``pycalphad.io.tdb._sympify_string`` in 0.11.2) is
-    wrapped, under a lock, for the duration of one parse. Where that private function is missing (another
-    pycalphad version), only the text guard applies.
-    """
-    try:
-        from pycalphad.io import tdb as tdb_module
-
-        original = tdb_module._sympify_string
-    except (ImportError, AttributeError):
-        yield
-        return
-
-    def guarded(math_string: str) -> object:
-        check(math_string)
-        return original(math_string)
-
-    with _PARSE_LOCK:
-        tdb_module._sympify_string = guarded
-        try:
-            yield
-        finally:
-            tdb_module._sympify_string = original
-

@@ -97,7 +97,12 @@ def run(args: argparse.Namespace) -> int:
             f"structure {args.structure!r} is neither a built-in lattice ({', '.join(_STRUCTURES)}) "
             "nor a structure file"
         )
-    out = check_output_path(args.output, overwrite=args.overwrite) if args.output else None
+    out = None
+    if args.output:
+        from solubility.databases.reader import database_path
+
+        inputs = [structure, database_path(args.with_elements) if args.with_elements else None]
+        out = check_output_path(args.output, overwrite=args.overwrite, inputs=inputs)
     model = SublatticeModel.from_structure(
         args.phase,
         _elements(args.host),
