@@ -23,6 +23,7 @@ __all__ = [
     "MAX_LITERAL_DIGITS",
     "MAX_NESTING",
     "check_expression",
+    "evaluate_constant",
     "split_ranges",
 ]
 
@@ -259,3 +260,9 @@ def split_ranges(text: str) -> list[str]:
         if words:
             exprs.append(" ".join(words))
     return exprs
+
+
+def evaluate_constant(expr: str, temperature: float) -> float | None:
+    """The value of an expression at a temperature, or None when it names anything but T (pure text)."""
+    text = re.sub(r"(?<![A-Z0-9_.])T#*(?![A-Z0-9_#])", f"({float(temperature)!r})", expr.upper())
+    return _ExprParser(_tokens(text)).parse()
