@@ -24,6 +24,7 @@ from typing import Any
 
 import numpy as np
 
+from solubility.constants import R
 from solubility.errors import InputError
 
 __all__ = [
@@ -37,7 +38,7 @@ __all__ = [
 ]
 
 #: machine precision (the 2018 CODATA value is 8.314462618; the difference is 6e-6 relative).
-GAS_CONSTANT = 8.3145
+GAS_CONSTANT = R
 
 
 def _positive(value: float, what: str) -> float:
