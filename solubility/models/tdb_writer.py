@@ -22,7 +22,9 @@ from solubility.models.tdb_text import check_expression, split_ranges
 if TYPE_CHECKING:  # pragma: no cover
     from solubility.models.sublattice import SublatticeModel
 
-__all__ = ["extend_tdb", "magnetic_constants", "normalise_parameters", "phase_block", "standalone_tdb"]
+__all__ = [
+    "extend_tdb", "magnetic_constants", "normalise_parameters", "phase_block", "standalone_tdb", "with_parameter",
+]
 
 ElementData = Mapping[str, tuple[str, float, float, float]]
 
@@ -282,3 +284,22 @@ def extend_tdb(base_text: str, model: SublatticeModel, parameters: Mapping[str, 
     block = phase_block(model, given, typechars=free[0] + free[1])
     note = f"$ phase {model.phase} {'replaced' if drop else 'added'} by solubility"
     return "\n".join(kept).rstrip() + "\n\n" + note + "\n" + block
+
+
+def with_parameter(base_text: str, key: str, expression: str) -> str:
+    """A database text with one PARAMETER set to `expression` (replaced where it exists, added otherwise).
+
+    `key` is ``TYPE(PHASE,ARRAY;ORDER)``; an expression without ``;`` is valid from 298.15 K to 6000 K.
+    """
+    want = key.replace(" ", "").upper()
+    drop: set[int] = set()
+    for cmd in tdb_commands(base_text):
+        if cmd.keyword == "PARAMETER":
+            words = cmd.text.split(None, 1)
+            head = words[1].split(")", 1)[0].replace(" ", "") + ")" if len(words) > 1 else ""
+            if not head.endswith(";0)") and ";" not in head:
+                head = head[:-1] + ";0)"
+            if head == want:
+                drop.update(range(cmd.first_line, cmd.last_line + 1))
+    kept = [ln for i, ln in enumerate(base_text.split("\n"), start=1) if i not in drop]
+    return "\n".join(kept).rstrip() + f"\n\n$ parameter set by solubility\n PARAMETER {want} {_range(expression)} !\n"
