@@ -23,7 +23,7 @@ _EXPORTS = {
     "find_sites": "geometry.sites",
     "misfit": "geometry.sites",
     "SublatticeModel": "models.sublattice",
-    "dilute_solubility": "models.sublattice",
+    "dilute_solubility": "models.closed_forms",
     "add_model": "databases.extend",
     "AuditRow": "databases.audit",
     "load_database": "databases.reader",

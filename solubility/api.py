@@ -10,8 +10,9 @@ import json
 from collections.abc import Mapping, Sequence
 
 from solubility.calc.inputs import MAX_TEMPERATURES
+from solubility.errors import InputError
 
-__all__ = ["solvus"]
+__all__ = ["fit", "solvus"]
 
 
 def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
@@ -68,3 +69,47 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
     if req.parameters:  # provenance: the values the free parameters had (JSON, flat attrs)
         ds.attrs["parameters"] = json.dumps(dict(req.parameters))
     return ds
+
+
+def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[str, float] | None = None,
+        bounds: Mapping[str, tuple[float, float]] | None = None, exclude: Sequence[str] = (),
+        pressure: float = 101325.0):
+    """Fit free symbols of one parameter expression to measured solvus data (least squares in ln x).
+
+    Parameters
+    ----------
+    data
+        CSV file: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner``, ``sigma_rel`` (relative
+        standard uncertainty), ``source`` (`solubility.calc.fitting.read_fit_data`).
+    database, phase, solute, exclude, pressure
+        As in `solvus`.
+    free
+        ``'G(PHASE,M:X;0)=EXPR'``; EXPR may use the database's FUNCTIONs and names the free symbols
+        (``GHSERFE#+3*GHSERCC#+A+B*T``): every name that is no FUNCTION of the database is fitted.
+    start, bounds
+        Starting values (default 0) and (low, high) bounds by symbol name.
+
+    Returns
+    -------
+    solubility.calc.fitting.FitResult
+        ``to_dict()`` gives parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic.
+    """
+    from solubility.calc.fitting import fit_solvus, free_database, read_fit_data
+    from solubility.calc.host import prepare_host
+
+    key, sep, expr = str(free).partition("=")
+    if not sep or not key.strip() or not expr.strip():
+        raise InputError(f"free parameter {free!r} is not 'G(PHASE,M:X;0)=EXPRESSION'")
+    ldb, names = free_database(database, key.strip(), expr.strip())
+    given = {str(k).upper(): float(v) for k, v in (start or {}).items()}
+    unknown = sorted(set(given) - set(names))
+    if unknown:
+        raise InputError(f"starting value for {unknown[0]}, which is not a free symbol of the expression "
+                         f"({', '.join(names)})")
+    values = {n: given.get(n, 0.0) for n in names}
+    req = prepare_host(ldb, phase, solute, exclude=exclude, pressure=pressure, parameters=values)
+    masses = dict(zip(req.system.elements, (float(m) for m in req.system.molar_masses), strict=True))
+    dat = read_fit_data(data, molar_masses=masses, solute=req.solute, host=req.balance)
+    result = fit_solvus(req, dat, values, {str(k).upper(): v for k, v in (bounds or {}).items()})
+    result.extra.update({"database": ldb.name, "phase": req.phase, "solute": req.solute, "free": str(free)})
+    return result

@@ -103,19 +103,20 @@ def test_model_hcp_blocking_json(capsys):
 
 
 def test_model_output_file_and_overwrite(capsys, tmp_path):
+    # --output writes a complete database (issue 11): ELEMENT data from the bundled fe-c, so C rather than N here
     target = tmp_path / "m.tdb"
-    assert _run(capsys, "model", "bcc", "--host", "FE", "--solute", "N", "--output", str(target))[0] == 0
+    assert _run(capsys, "model", "bcc", "--host", "FE", "--solute", "C", "--output", str(target))[0] == 0
     first = target.read_text()
-    assert "CONSTITUENT BCC_A2 :FE:N,VA:" in first
-    code, _, err = _run(capsys, "model", "bcc", "--host", "FE", "--solute", "C", "--output", str(target))
+    assert "CONSTITUENT BCC_A2 :FE:C,VA:" in first
+    code, _, err = _run(capsys, "model", "fcc", "--host", "FE", "--solute", "C", "--output", str(target))
     assert code == 2 and "exists already" in err and target.read_text() == first
     assert (
-        _run(capsys, "model", "bcc", "--host", "FE", "--solute", "C", "--output", str(target), "--overwrite")[
+        _run(capsys, "model", "fcc", "--host", "FE", "--solute", "C", "--output", str(target), "--overwrite")[
             0
         ]
         == 0
     )
-    assert "FE:C,VA" in target.read_text()
+    assert "CONSTITUENT FCC_A1 :FE:C,VA:" in target.read_text()
     assert [p.name for p in tmp_path.iterdir()] == ["m.tdb"]  # no temporary file left
 
 

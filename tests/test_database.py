@@ -28,7 +28,8 @@ from solubility.databases.reader import (
     load_database,
 )
 from solubility.errors import DatabaseError, DatabaseNotFoundError
-from solubility.models.sublattice import GAS_CONSTANT, SublatticeModel
+from solubility.models.closed_forms import GAS_CONSTANT
+from solubility.models.sublattice import SublatticeModel
 
 DB_DIR = Path(__file__).resolve().parents[1] / "solubility" / "databases"
 

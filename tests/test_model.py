@@ -21,21 +21,22 @@ import pytest
 from ideal_systems import IDEAL_CASES, ideal_db
 
 from solubility.errors import InputError, StructureError
-from solubility.models.sublattice import (
+from solubility.models.closed_forms import (
     GAS_CONSTANT,
-    SublatticeModel,
     dilute_solubility,
     formulas,
     ideal_entropy,
     x_from_y,
     y_from_x,
 )
+from solubility.models.sublattice import SublatticeModel
 
 
 def test_import_does_not_pull_heavy_modules():
     # design.md: model never imports pycalphad, xarray or matplotlib (sympy only inside functions)
     code = (
-        "import sys, solubility.models.sublattice\n"
+        "import sys, solubility.models.sublattice, solubility.models.closed_forms, solubility.models.tdb_writer\n"
+        "import solubility.models.tdb_commands\n"
         "bad = [m for m in ('pycalphad', 'xarray', 'matplotlib', 'sympy') if m in sys.modules]\n"
         "print(','.join(bad))"
     )

@@ -16,7 +16,7 @@ import pytest
 from ideal_systems import IDEAL_CASES, ideal_db
 
 import solubility
-from solubility.models.sublattice import dilute_solubility
+from solubility.models.closed_forms import dilute_solubility
 
 
 @pytest.mark.parametrize(("c", "A", "B", "p", "q", "GA", "GB"), IDEAL_CASES)

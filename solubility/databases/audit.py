@@ -27,8 +27,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from solubility.constants import DEFAULT_SITE_KIND, INTERSTITIAL_ELEMENTS
 from solubility.errors import InputError
-from solubility.models.sublattice import DEFAULT_SITE_KIND, INTERSTITIAL_ELEMENTS
 
 __all__ = ["LATTICE_TAGS", "VERDICTS", "AuditRow", "audit_database", "lattice_from_name"]
 

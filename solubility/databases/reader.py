@@ -226,6 +226,8 @@ def load_database(spec: str | os.PathLike | Database, *, max_bytes: int = MAX_FI
         A folder, an empty, binary, oversized or unparsable file (with the line where known), an expression
         that breaks the guards, a database without phases or with a phase lacking constituents.
     """
+    if isinstance(spec, LoadedDatabase):  # what add_model returns is accepted wherever a database is
+        return spec
     if not isinstance(spec, str | os.PathLike):
         return _wrap_database(spec)
     path, label = _resolve(spec)

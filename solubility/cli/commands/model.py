@@ -4,9 +4,14 @@ The site ratio c = a n (1 - b) comes from the count n of sites per host atom of 
 blocking fraction b. Defaults: the phase name of the lattice (fcc FCC_A1, bcc BCC_A2, hcp HCP_A3, diamond
 DIAMOND_A4, sc SC_AH) and the site family C and N usually take (octahedral in fcc, bcc and hcp, tetrahedral in
 diamond, cubic in sc). Common practice: hcp is written with --blocking 0.5, giving HCP_A3 1:0.5.
-End-members not given with --parameter get zero placeholders, marked in a comment. The block loads in
-pycalphad on its own with --with-elements (ELEMENT lines copied from a database, the bundled fe-c by default),
-or appended to a database that declares the elements and any FUNCTIONs the parameters use.
+End-members not given with --parameter get zero placeholders, marked in a comment. TC and BMAGN parameters add
+the magnetic type definition of the lattice (bcc -1, 0.40; fcc and hcp -3, 0.28).
+
+--output FILE writes a database pycalphad loads on its own: ELEMENT lines and every FUNCTION the parameters use,
+copied from --with-elements DATABASE (default the bundled fe-c). --base DATABASE writes that database with the
+phase added, or replacing the phase of the same name. --from-phase PHASE copies the parameters of a phase of that
+database; when its site ratio differs from the model's, they are re-expressed exactly so that the dilute
+solubility stays the same (how far the concentrated behaviour moves is reported in the file and with --json).
 """
 
 from __future__ import annotations
@@ -78,7 +83,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="DATABASE",
         help="also write ELEMENT lines, copied from DATABASE (default: the bundled fe-c)",
     )
-    parser.add_argument("--output", metavar="FILE", help="write the block to FILE instead of standard output")
+    parser.add_argument(
+        "--base", metavar="DATABASE", help="write DATABASE with the phase added or replaced (a path or bundled name)"
+    )
+    parser.add_argument(
+        "--from-phase",
+        metavar="PHASE",
+        help="copy the parameters of PHASE of the base (or --with-elements) database, converted to the site ratio "
+        "(default with --base: the model's own phase, when the base has it)",
+    )
+    parser.add_argument(
+        "--output", metavar="FILE", help="write a complete database to FILE (loads in pycalphad on its own)"
+    )
     parser.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     parser.add_argument(
         "--json", action="store_true", help='print one JSON object: {"model": ..., "tdb": ...}'
@@ -112,16 +128,23 @@ def run(args: argparse.Namespace) -> int:
         blocking=args.blocking,
         c_over_a=args.c_over_a,
     )
-    elements = None
-    if args.with_elements:
-        from solubility.databases.reader import element_data, load_database
+    info: dict = {}
+    if args.base or args.from_phase or out is not None:
+        from solubility.calc.model_file import model_database_text
 
-        elements = element_data(load_database(args.with_elements), [*model.hosts, *model.interstitials])
-    text = model.tdb_block(dict(args.parameter), elements=elements)
+        text, info = model_database_text(model, dict(args.parameter), base=args.base,
+                                         source=args.with_elements or "fe-c", from_phase=args.from_phase)
+    else:
+        elements = None
+        if args.with_elements:
+            from solubility.databases.reader import element_data, load_database
+
+            elements = element_data(load_database(args.with_elements), [*model.hosts, *model.interstitials])
+        text = model.tdb_block(dict(args.parameter), elements=elements)
     if out is not None:
         atomic_write_text(out, text)
     if args.json:
-        emit_json({"model": model.to_dict(), "tdb": text, "output": None if out is None else str(out)})
+        emit_json({"model": model.to_dict(), "tdb": text, "output": None if out is None else str(out), **info})
     elif out is None:
         print(text, end="")
     return 0
