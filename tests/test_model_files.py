@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 
 from solubility.cli.main import main
-from solubility.databases.reader import add_model, load_database
+from solubility.databases.extend import add_model
+from solubility.databases.reader import load_database
 from solubility.models.sublattice import SublatticeModel
 
 _TS = np.array([300.0, 700.0, 1000.0, 1043.0, 1200.0])

@@ -18,7 +18,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """List the bundled databases."""
-    from solubility.databases.reader import bundled_databases
+    from solubility.databases.bundled import bundled_databases
 
     entries = bundled_databases()
     if args.json:
