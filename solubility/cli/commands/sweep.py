@@ -147,8 +147,8 @@ def _check_outputs_are_not_inputs(args: argparse.Namespace, outputs: list, cases
     from solubility.errors import InputError
 
     inputs = {os.path.realpath(args.job): f"the job file {args.job}"}
-    inputs.update({os.path.realpath(c.database): f"the database of case {c.name!r}" for c in cases
-                   if os.path.isfile(c.database)})
+    for case in (c for c in cases if os.path.isfile(c.database)):
+        inputs.setdefault(os.path.realpath(case.database), f"the database of case {case.name!r}")
     seen: dict[str, str] = {}
     for option, path, _ in outputs:
         real = os.path.realpath(path)
