@@ -135,7 +135,7 @@ class Sampler:
 def _preload() -> None:
     import importlib
 
-    from solubility.sweeps.executors import PRELOAD
+    from solubility.sweeps.run import PRELOAD
 
     for name in PRELOAD:
         importlib.import_module(name)
