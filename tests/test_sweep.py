@@ -142,7 +142,7 @@ def test_dask_local_cluster_gives_the_same_dataset(serial):
     import distributed  # in the test extra: a missing install fails here rather than skipping
     # threads in this process: the cheapest cluster that still goes through the client and scheduler
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster:
+                                  dashboard_address=":0") as cluster:
         assert_same_sweep(sweep(CASES, scheduler=cluster), serial)
         assert_same_sweep(sweep(CASES, scheduler=cluster.scheduler_address), serial)
 
