@@ -135,7 +135,7 @@ class Sampler:
 def _preload() -> None:
     import importlib
 
-    from solubility.sweeps.executors import PRELOAD
+    from solubility.sweeps.run import PRELOAD
 
     for name in PRELOAD:
         importlib.import_module(name)
@@ -170,7 +170,7 @@ def scaling(cases: list[Case], repeat: int) -> dict[str, tuple[float, float]]:
                   f"workers' CPU {cpu:6.1f} s, {status.count('ok')}/{len(status)} ok)", flush=True)
             best[label] = min(best.get(label, (np.inf, 0.0)), (wall, cpu))
         start = time.perf_counter()
-        cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+        cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0")
         with Client(cluster) as client:  # import what the local pool's fork server has preloaded, as a
             client.run(_preload)  # long-lived cluster would have: the imports are not part of a sweep
         up = time.perf_counter() - start

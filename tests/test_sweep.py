@@ -142,7 +142,7 @@ def test_dask_local_cluster_gives_the_same_dataset(serial):
     import distributed  # in the test extra: a missing install fails here rather than skipping
     # threads in this process: the cheapest cluster that still goes through the client and scheduler
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  dashboard_address=None) as cluster:
+                                  dashboard_address=":0") as cluster:
         assert_same_sweep(sweep(CASES, scheduler=cluster), serial)
         assert_same_sweep(sweep(CASES, scheduler=cluster.scheduler_address), serial)
 
@@ -152,21 +152,22 @@ def test_store_and_resume(serial, tmp_path):
     full = sweep(CASES, workers=0, store=store)
     assert_same_sweep(full, serial)
     files = sorted(p.name for p in store.iterdir())
-    assert files == ["case-00000.json", "case-00001.json", "case-00002.json", "case-00003.json",
-                     "case-00004.json", "manifest.json"]
+    # the failed case (4) is not stored: it runs again on resume
+    assert files == ["case-00000.nc", "case-00001.nc", "case-00002.nc", "case-00003.nc", "finished.jsonl",
+                     "manifest.json"]
     # a run that stopped after some cases: remove two case files, leave a half-written temporary file
-    (store / "case-00001.json").unlink()
-    (store / "case-00003.json").unlink()
-    (store / ".case-00003.json.x1y2.part").write_text('{"format": "solubility sw')
-    kept = {p.name: p.stat().st_mtime_ns for p in store.glob("case-*.json")}
+    (store / "case-00001.nc").unlink()
+    (store / "case-00003.nc").unlink()
+    (store / ".case-00003.nc.x1y2.part").write_bytes(b"\x89HDF\r\n")
+    kept = {p.name: p.stat().st_mtime_ns for p in store.glob("case-*.nc")}
     calls = []
     resumed = sweep(CASES, workers=0, store=store, resume=True,
                     progress=lambda done, total, case, status: calls.append((done, case and case.name)))
     assert_same_sweep(resumed, serial)
     # the finished ok cases were read back, not run again; the failed one was run again
     assert calls == [(2, None), (3, "austenite"), (4, "austenite-cementite"), (5, "no-partner")]
-    assert all((store / n).stat().st_mtime_ns == t for n, t in kept.items() if n != "case-00004.json")
-    assert not list(store.glob(".*.part"))
+    assert all((store / n).stat().st_mtime_ns == t for n, t in kept.items())
+    assert not list(store.glob(".*.part")) and not (store / "lock").exists()
 
 
 def test_store_of_another_job_is_refused_unless_overwrite(tmp_path):
@@ -178,7 +179,7 @@ def test_store_of_another_job_is_refused_unless_overwrite(tmp_path):
         sweep(CASES[:1], workers=0, store=store)
     again = sweep(CASES[1:2], workers=0, store=store, overwrite=True)
     assert again["case"].values.tolist() == ["austenite"]
-    assert sorted(p.name for p in store.iterdir()) == ["case-00000.json", "manifest.json"]
+    assert sorted(p.name for p in store.iterdir()) == ["case-00000.nc", "finished.jsonl", "manifest.json"]
     manifest = json.loads((store / "manifest.json").read_text())
     assert [c["name"] for c in manifest["cases"]] == ["austenite"]
 

@@ -16,7 +16,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from solubility.errors import JobError
-from solubility.sweeps import Case, job_sha256, parse_job, read_job
+from solubility.sweeps import MAX_CASES, Case, job_sha256, parse_job, read_job
+from solubility.sweeps.job import number_label
 
 BASE = {"name": "a", "database": "fe-c", "phase": "BCC_A2", "solute": "C", "temperatures": "800:900:50"}
 
@@ -29,14 +30,13 @@ def _write(tmp_path: Path, text: str) -> Path:
 
 def test_case_normalizes_its_inputs():
     case = Case(name=" a ", database="fe-c", phase="bcc_a2", solute="c", temperatures="800:900:50",
-                exclude=["graphite", "DIAMOND_A4", "GRAPHITE"], fix={"cr": 0.02, "Mn": 0}, pressure=1e5)
+                exclude=["graphite", "DIAMOND_A4", "GRAPHITE"], fix={"cr": 0.02, "Mn": 0.01}, pressure=1e5)
     assert case.name == "a"
     assert (case.phase, case.solute) == ("BCC_A2", "C")
     assert case.temperatures == (800.0, 850.0, 900.0)  # STOP included (design.md)
     assert case.exclude == ("DIAMOND_A4", "GRAPHITE")  # sorted, without repeats
-    assert case.fix == (("CR", 0.02), ("MN", 0.0))
-    assert case.solvus_fix == {"CR": 0.02}  # u = 0 is the alloy without the element
-    assert case.fix_dict == {"CR": 0.02, "MN": 0.0}
+    assert case.fix == (("CR", 0.02), ("MN", 0.01))
+    assert case.solvus_fix == case.fix_dict == {"CR": 0.02, "MN": 0.01}
 
 
 def test_temperatures_are_rounded_to_a_microkelvin_so_grids_share_points():
@@ -59,23 +59,26 @@ def test_job_hash_depends_on_every_input_and_the_order():
     ("key", "value", "message"),
     [
         ("temperatures", "900:800:50", "STOP is below START"),
-        ("temperatures", [800, 800], "strictly increasing"),
+        ("temperatures", [800, 800], "repeat a value"),
         ("temperatures", [900, 800], "strictly increasing"),
-        ("temperatures", [-5.0], "greater than 0 K"),
+        ("temperatures", [-5.0], "below absolute zero"),
         ("temperatures", "hot", "not a number"),
-        ("fix", {"CR": 1.2}, "outside [0, 1)"),
-        ("fix", {"CR": 0.6, "MN": 0.5}, "add up to 1.1"),
+        ("temperatures", [True], "expected a list of numbers"),
+        # the API's rule (solubility.calc.inputs.check_fix): u in (0, 1); the alloy without CR is fix = {}
+        ("fix", {"CR": 1.2}, "outside (0, 1)"),
+        ("fix", {"CR": 0}, "outside (0, 1)"),
+        ("fix", {"CR": 0.6, "MN": 0.5}, "sum to 1.1"),
         ("fix", {"C": 0.01}, "solute cannot also be"),
         ("fix", "CR=0.02", "expected a table"),
-        ("pressure", -1, "greater than 0 Pa"),
+        ("pressure", -1, "finite number of Pa > 0"),
         ("pressure", True, "expected a number, got a boolean"),
-        ("pressure", math.inf, "not a finite number"),
+        ("pressure", math.inf, "finite number of Pa > 0"),
         ("exclude", "GRAPHITE", "expected a list of phase names"),
         ("exclude", ["BCC_A2"], "cannot be excluded"),
         ("solute", "Carbon", "not an element symbol"),
         ("phase", "BCC A2", "not a phase name"),
         ("database", 3, "expected a path"),
-        ("name", "", "is empty"),
+        ("name", "", "expected a name"),
     ],
 )
 def test_case_rejects_bad_values_naming_the_key(key, value, message):
@@ -107,12 +110,12 @@ name = "{phase}-cr{fix.CR}-{index}"
 pressure = 2e5
 [product.vary]
 phase = ["BCC_A2", "FCC_A1"]
-fix.CR = [0, 0.01, 0.02]
+fix.CR = [0.005, 0.01, 0.02]
 """)
     cases = read_job(path)
     assert [c.name for c in cases] == [
-        "ferrite", "austenite", "BCC_A2-cr0-1", "BCC_A2-cr0.01-2", "BCC_A2-cr0.02-3",
-        "FCC_A1-cr0-4", "FCC_A1-cr0.01-5", "FCC_A1-cr0.02-6",
+        "ferrite", "austenite", "BCC_A2-cr0.005-1", "BCC_A2-cr0.01-2", "BCC_A2-cr0.02-3",
+        "FCC_A1-cr0.005-4", "FCC_A1-cr0.01-5", "FCC_A1-cr0.02-6",
     ]
     assert cases[0].temperatures == (800.0, 850.0, 900.0)  # from [defaults]
     assert cases[1].temperatures == (1200.0, 1250.5)  # the case's own value replaces the default
@@ -182,7 +185,7 @@ BAD_JOBS = [
      r"placeholder \{phsae\} .*did you mean 'phase'"),
     ("bad value in a product",
      PROD + 'name = "{fix.CR}"\nphase = "BCC_A2"\n[product.vary]\nfix.CR = [0.01, 2]\n',
-     r"product 1, combination 2 \('2'\): key 'fix.CR': u-fraction 2 is outside"),
+     r"product 1, combination 2 \('2'\): key 'fix.CR': fix CR=2 is outside \(0, 1\)"),
 ]
 
 
@@ -205,7 +208,7 @@ def test_missing_and_unreadable_job_files(tmp_path):
 @given(
     phases=st.lists(st.sampled_from(["BCC_A2", "FCC_A1", "HCP_A3", "LIQUID"]), min_size=1, max_size=3,
                     unique=True),
-    contents=st.lists(st.floats(0, 0.2, allow_nan=False), min_size=1, max_size=4, unique=True),
+    contents=st.lists(st.floats(0.001, 0.2, allow_nan=False), min_size=1, max_size=4, unique=True),
     pressures=st.lists(st.floats(1e3, 1e8, allow_nan=False), min_size=1, max_size=3, unique=True),
 )
 def test_product_size_is_the_product_of_the_list_lengths(phases, contents, pressures):
@@ -215,3 +218,34 @@ def test_product_size_is_the_product_of_the_list_lengths(phases, contents, press
     assert len(cases) == len(phases) * len(contents) * len(pressures)
     combos = {(c.phase, c.fix_dict["CR"], c.pressure) for c in cases}
     assert len(combos) == len(cases)  # every combination once
+
+
+@pytest.mark.parametrize(
+    ("value", "text"),
+    # issue 12: one compact form, no "+" (100000 and 1e+09 were both possible before)
+    [(1e5, "1e5"), (100000, "1e5"), (1e9, "1e9"), (3e9, "3e9"), (2.5e9, "2.5e9"), (101325, "1.01325e5"),
+     (1000, "1000"), (1200.5, "1200.5"), (0.02, "0.02"), (0.001, "0.001"), (1e-4, "1e-4"), (0, "0")],
+)
+def test_numbers_in_case_names_have_one_compact_form(value, text):
+    assert number_label(value) == text
+    assert float(text) == value  # reads back to the same number
+
+
+def test_pressure_and_u_fraction_names_in_a_product():
+    job = {"product": [{"name": "BCC_A2-{pressure}Pa-cr{fix.CR}", "database": "fe-c", "solute": "C",
+                        "temperatures": [900], "phase": "BCC_A2",
+                        "vary": {"pressure": [1e5, 100000.5, 1e9, 3e9], "fix": {"CR": [0.0001, 0.02]}}}]}
+    names = [c.name for c in parse_job(job)]
+    assert names[:4] == ["BCC_A2-1e5Pa-cr1e-4", "BCC_A2-1e5Pa-cr0.02", "BCC_A2-1.000005e5Pa-cr1e-4",
+                         "BCC_A2-1.000005e5Pa-cr0.02"]
+    assert names[-1] == "BCC_A2-3e9Pa-cr0.02" and not any("+" in n for n in names)
+
+
+@pytest.mark.parametrize("lengths", [(100, 100, 100, 100), (100, 100, 100, 100, 100)], ids=["1e8", "1e10"])
+def test_a_huge_product_is_refused_before_it_is_expanded(lengths):
+    keys = ["pressure", "phase", "exclude", "temperatures", "database"]
+    vary = {k: list(range(1, n + 1)) for k, n in zip(keys, lengths, strict=False)}
+    job = {"product": [{"name": "c{index}", "database": "fe-c", "solute": "C", "temperatures": [900],
+                        "phase": "BCC_A2", "vary": vary}]}
+    with pytest.raises(JobError, match=rf"expands to {math.prod(lengths):,} cases; at most {MAX_CASES:,}"):
+        parse_job(job)

@@ -1,20 +1,14 @@
-"""One Dataset along ``case`` from the per-case solvus Datasets, and its JSON, CSV and NetCDF forms.
+"""One Dataset along ``case`` from the per-case solvus Datasets (`xarray.concat`, outer join), and its JSON and CSV.
 
-Layout of a sweep Dataset
--------------------------
-Dims ``case`` and ``T``; ``T`` is the sorted union of every case's temperatures (K). A point that a case
-did not ask for is padding: ``requested`` is False there, numbers are NaN, strings ``""`` and flags False.
-A failed case has ``requested`` True at its temperatures and padding values everywhere. Other dims of the
-solvus result (``component`` of ``MU``) are the sorted union over the cases, padded the same way.
-
-Coordinates along ``T``: ``T`` (K) and ``T_C`` (degC). Along ``case``: ``case`` (the names), the inputs
-``database`` (as given), ``phase``, ``solute``, ``pressure`` (Pa), ``fix`` (JSON text of the u-fractions),
-``exclude`` (phase names joined by ","), ``balance`` (the balance element the solvus used; the one given, or
-"", for a failed case), then ``case_status`` ("ok" or "failed") and ``case_error`` (its one-line message, ""
-when ok), then the other per-case attributes of the solvus result: ``database_name``, ``database_sha256``,
-``site_ratios``, ``candidates``, ... ("" for a failed case). (The solvus's own per-point ``status`` variable
-keeps its name, so the per-case ones are ``case_status`` and ``case_error``.) Attributes of the sweep: the
-package versions and caution of the first finished case, ``title``, ``job_sha256`` and ``created``.
+Layout: dims ``case`` and ``T``, the sorted union of every case's temperatures (K), with ``T_C`` (degC).
+``requested`` is True at a case's own temperatures; elsewhere the values are padding (NaN, ``""``, False).
+A failed case has padding everywhere. Other dims of the solvus (``component`` of ``MU``) are the sorted union
+over the cases, padded the same way; ``change`` (partner changes) is padded to the longest.
+Coordinates along ``case``: ``case`` (the names), the inputs ``database`` (as given), ``phase``, ``solute``,
+``pressure`` (Pa), ``fix`` (JSON), ``exclude`` (joined by ","), ``balance`` (the one the solvus used), then
+``case_status`` ("ok"/"failed") and ``case_error``, then the other per-case attributes of the solvus result
+(``database_name``, ``database_sha256``, ``site_ratios``, ``candidates``, ...). Attributes: the package
+versions and caution of the first finished case, ``title``, ``job_sha256`` and ``created``.
 """
 
 from __future__ import annotations
@@ -30,232 +24,110 @@ from typing import Any
 import numpy as np
 
 from solubility._io import atomic_write, atomic_write_text
-from solubility.errors import OutputError
-from solubility.results.dataset import ZERO_CELSIUS
-from solubility.sweeps.case import Case
-from solubility.sweeps.store import CaseOutcome
+from solubility.constants import ZERO_CELSIUS
+from solubility.sweeps.job import Case, job_sha256
+from solubility.sweeps.store import canonical
 
-__all__ = ["assemble", "case_dataset", "check_netcdf_engine", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
+__all__ = ["assemble", "case_dataset", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
 
-#: solvus attributes kept once for the whole sweep (besides every ``*_version``)
-_GLOBAL = ("caution",)
-#: solvus attributes replaced by the sweep's own (inputs are coordinates; title and creation time the sweep's)
+#: solvus attributes that are inputs (coordinates already) or the sweep's own
 _DROPPED = {"created", "title", "phase", "solute", "pressure_Pa", "fix", "balance", "exclude"}
-#: solvus attributes renamed as coordinates (the input coordinate keeps the plain name)
-_RENAMED = {"database": "database_name"}
-INPUT_COORDS = (
-    *("database", "phase", "solute", "pressure", "fix", "exclude", "balance"),
-    *("case_status", "case_error"),
-)
+INPUT_COORDS = ("database", "phase", "solute", "pressure", "fix", "exclude", "balance", "case_status", "case_error")
 
 
 def _fill(dtype: np.dtype) -> Any:
-    if dtype.kind == "f":
-        return np.nan
-    if dtype.kind == "c":
-        return complex(np.nan, np.nan)
-    if dtype.kind == "b":
-        return False
-    if dtype.kind in "iu":
-        return -1
-    return ""
+    return {"f": np.nan, "c": complex(np.nan, np.nan), "b": False, "i": -1, "u": 0}.get(dtype.kind, "")
 
 
-def _canonical(values: np.ndarray) -> np.ndarray:
-    """Strings as numpy unicode, everything else as it is (files read back give object arrays)."""
-    values = np.asarray(values)
-    if values.dtype.kind in "OSU":
-        return np.asarray(values.astype(str), dtype=str)
-    return values
+def _is_global(key: str) -> bool:
+    return key.endswith("_version") or key == "caution"
 
 
-def _union(arrays: Sequence[np.ndarray]) -> np.ndarray:
-    return np.unique(np.concatenate([np.asarray(a) for a in arrays])) if arrays else np.array([])
-
-
-def assemble(cases: Sequence[Case], outcomes: Mapping[int, CaseOutcome], job: str):
-    """Combine the outcome of every case (index -> outcome) into one sweep Dataset (see module docstring)."""
+def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[int, str]):
+    """The sweep Dataset of the finished cases' Datasets (index -> Dataset) and the failed ones' messages."""
     import xarray as xr
 
-    T = np.unique(np.concatenate([np.asarray(c.temperatures, dtype=float) for c in cases]))
-    results = {i: o.data for i, o in outcomes.items() if o.ok}
     order = sorted(results)
+    parts = []
+    for i in order:
+        ds = canonical(results[i]).drop_vars("T_C", errors="ignore")
+        if "change" in ds.dims:
+            ds = ds.assign_coords(change=np.arange(ds.sizes["change"]))
+        parts.append(ds.assign_coords(case=cases[i].name).expand_dims("case"))
+    T = np.unique(np.concatenate([np.asarray(c.temperatures, dtype=float) for c in cases]))
+    names = [c.name for c in cases]
+    if parts:
+        fills = {n: _fill(v.dtype) for p in parts for n, v in p.data_vars.items()}
+        ds = xr.concat(parts, dim="case", join="outer", fill_value=fills, combine_attrs="drop_conflicts",
+                       coords="minimal", data_vars="all")
+        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars("change", errors="ignore")
+        ds.attrs = {k: v for k, v in results[order[0]].attrs.items() if _is_global(k)}
+        ds["T"].attrs = dict(results[order[0]]["T"].attrs)
+    else:
+        ds = xr.Dataset(coords={"case": names, "T": ("T", T, {"units": "K", "long_name": "temperature"})})
+    ds["case"] = ("case", np.array(names, dtype=str), {"long_name": "case"})
     requested = np.zeros((len(cases), T.size), dtype=bool)
     for i, case in enumerate(cases):
         requested[i, np.searchsorted(T, case.temperatures)] = True
-    extra_dims = _extra_coords([results[i] for i in order])
-    data_vars: dict[str, Any] = {}
-    for name in _variable_names([results[i] for i in order]):
-        data_vars[name] = _stack(name, cases, results, T, extra_dims)
-    data_vars["requested"] = (
-        ("case", "T"),
-        requested,
-        {"long_name": "temperature asked for by the case (False: padding of the union of grids)"},
-    )
-    coords: dict[str, Any] = {
-        "case": ("case", np.array([c.name for c in cases], dtype=str), {"long_name": "case"})
-    }
-    coords["T"] = ("T", T, _T_attrs([results[i] for i in order]))
-    coords["T_C"] = ("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"})
-    for dim, values in extra_dims.items():
-        if any(dim in results[i].coords for i in order):
-            attrs = next(dict(results[i][dim].attrs) for i in order if dim in results[i].coords)
-            coords[dim] = (dim, values, attrs)
-    coords.update(_input_coords(cases, outcomes))
-    coords.update(_result_coords(len(cases), results))
-    ds = xr.Dataset(data_vars, coords=coords)
-    ds.attrs["title"] = f"sweep of {len(cases)} solvus cases"
-    ds.attrs.update(_global_attrs([results[i] for i in order]))
-    ds.attrs["job_sha256"] = job
-    ds.attrs["created"] = datetime.now(UTC).isoformat(timespec="seconds")
+    ds["requested"] = (("case", "T"), requested,
+                       {"long_name": "temperature asked for by the case (False: padding of the union of grids)"})
+    ds = ds.assign_coords(T_C=("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}))
+    ds = ds.assign_coords(_case_coords(cases, results, errors))
+    ds.attrs.update(title=f"sweep of {len(cases)} solvus cases", job_sha256=job_sha256(list(cases)),
+                    created=datetime.now(UTC).isoformat(timespec="seconds"))
     return ds
 
 
-def _T_attrs(datasets: Sequence[Any]) -> dict[str, Any]:
-    if datasets and "T" in datasets[0].coords:
-        return dict(datasets[0]["T"].attrs)
-    return {"units": "K", "long_name": "temperature"}
-
-
-def _variable_names(datasets: Sequence[Any]) -> list[str]:
-    names: list[str] = []
-    for ds in datasets:
-        names.extend(str(n) for n in ds.data_vars if n not in names)
-    return names
-
-
-def _extra_coords(datasets: Sequence[Any]) -> dict[str, np.ndarray]:
-    """Sorted union of the values of every dim other than T (such as ``component``)."""
-    dims: dict[str, list[np.ndarray]] = {}
-    for ds in datasets:
-        for var in ds.data_vars.values():
-            for dim in var.dims:
-                if dim != "T":
-                    dims.setdefault(str(dim), [])
-        for dim in dims:
-            if dim in ds.dims:
-                values = ds[dim].values if dim in ds.coords else np.arange(ds.sizes[dim])
-                dims[dim].append(_canonical(values))
-    return {dim: _union(arrays) for dim, arrays in dims.items()}
-
-
-def _stack(name: str, cases: Sequence[Case], results: Mapping[int, Any], T: np.ndarray, extra: Mapping):
-    """The (case, T, ...) array of one variable, padded (see the module docstring)."""
-    first = next(results[i][name] for i in sorted(results) if name in results[i].data_vars)
-    dims = ("case", *first.dims)
-    dtype = _canonical(first.values).dtype
-    shape = [len(cases)] + [T.size if d == "T" else extra[d].size for d in first.dims]
-    out = np.full(shape, _fill(dtype), dtype=object if dtype.kind == "U" else dtype)
-    for i, ds in results.items():
-        if name not in ds.data_vars:
-            continue
-        var = ds[name].transpose(*first.dims)
-        index = tuple(_positions(ds, d, T, extra) for d in first.dims)
-        out[(i, *np.ix_(*index))] = _canonical(var.values)
-    if dtype.kind == "U":
-        out = np.asarray(out.astype(str), dtype=str)
-    return dims, out, dict(first.attrs)
-
-
-def _positions(ds, dim: str, T: np.ndarray, extra: Mapping[str, np.ndarray]) -> np.ndarray:
-    union = T if dim == "T" else extra[dim]
-    if dim == "T":
-        values = ds["T"].values.astype(float)
-    else:
-        values = _canonical(ds[dim].values) if dim in ds.coords else np.arange(ds.sizes[dim])
-    positions = np.minimum(np.searchsorted(union, values), union.size - 1)
-    if not np.array_equal(union[positions], values):  # pragma: no cover - the solvus returns the T asked for
-        raise RuntimeError(f"a case result has {dim} values that are not in the sweep's {dim} coordinate")
-    return positions
-
-
-def _input_coords(cases: Sequence[Case], outcomes: Mapping[int, CaseOutcome]) -> dict[str, Any]:
-    missing = CaseOutcome(status="failed", error="not run")
-    status = [outcomes.get(i, missing) for i in range(len(cases))]
-
-    def text(values: list[str], long_name: str) -> tuple:
+def _case_coords(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[int, str]) -> dict[str, Any]:
+    def text(values, long_name):
         return ("case", np.array(values, dtype=str), {"long_name": long_name})
 
-    return {
+    n = len(cases)
+    out = {
         "database": text([c.database for c in cases], "database (path or bundled name)"),
         "phase": text([c.phase for c in cases], "host phase"),
         "solute": text([c.solute for c in cases], "solute element"),
         "pressure": ("case", np.array([c.pressure for c in cases]), {"units": "Pa", "long_name": "pressure"}),
         "fix": text([json.dumps(c.fix_dict, sort_keys=True) for c in cases], "fixed u-fractions (JSON)"),
         "exclude": text([",".join(c.exclude) for c in cases], "excluded phases"),
-        "balance": text([_balance(c, o) for c, o in zip(cases, status, strict=True)], "balance element"),
-        "case_status": text([o.status for o in status], "case status: ok or failed"),
-        "case_error": text([o.error for o in status], "error of a failed case"),
+        "balance": text([str(results[i].attrs.get("balance", "")) if i in results else (c.balance or "")
+                         for i, c in enumerate(cases)], "balance element"),
+        "case_status": text(["ok" if i in results else "failed" for i in range(n)], "case status: ok or failed"),
+        "case_error": text(["" if i in results else errors.get(i, "not run") for i in range(n)],
+                           "error of a failed case"),
     }
-
-
-def _balance(case: Case, outcome: CaseOutcome) -> str:
-    if outcome.ok and outcome.data.attrs.get("balance"):
-        return str(outcome.data.attrs["balance"])
-    return case.balance or ""
-
-
-def _is_global(key: str) -> bool:
-    return key.endswith("_version") or key in _GLOBAL
-
-
-def _result_coords(n: int, results: Mapping[int, Any]) -> dict[str, Any]:
-    """Per-case attributes of the solvus results as coordinates along case ("" or NaN for failed cases)."""
-    keys: list[str] = []
-    for i in sorted(results):
-        keys.extend(k for k in results[i].attrs if k not in keys and k not in _DROPPED and not _is_global(k))
-    coords = {}
+    keys = list(dict.fromkeys(k for i in sorted(results) for k in results[i].attrs
+                              if k not in _DROPPED and not _is_global(k)))
     for key in keys:
         values = [results[i].attrs.get(key) if i in results else None for i in range(n)]
-        coords[_RENAMED.get(key, key)] = ("case", _attr_column(values))
-    return coords
-
-
-def _attr_column(values: list[Any]) -> np.ndarray:
-    present = [v for v in values if v is not None]
-    numeric = all(
-        isinstance(v, int | float | np.number) and not isinstance(v, bool | np.bool_) for v in present
-    )
-    if present and numeric:
-        return np.array([np.nan if v is None else float(v) for v in values])
-    return np.array(["" if v is None else _attr_text(v) for v in values], dtype=str)
-
-
-def _attr_text(value: Any) -> str:
-    if isinstance(value, str):
-        return value
-    if hasattr(value, "tolist"):
-        value = value.tolist()
-    return json.dumps(value)
-
-
-def _global_attrs(datasets: Sequence[Any]) -> dict[str, Any]:
-    if not datasets:
-        return {}
-    return {k: _plain(v) for k, v in datasets[0].attrs.items() if _is_global(k)}
-
-
-def _plain(value: Any) -> Any:
-    """numpy scalars (and 0-d arrays) as Python values."""
-    if isinstance(value, np.generic) or (isinstance(value, np.ndarray) and value.ndim == 0):
-        return value.item()
-    return value
+        present = [v for v in values if v is not None]
+        if present and all(isinstance(v, int | float | np.number) and not isinstance(v, bool) for v in present):
+            column = np.array([np.nan if v is None else float(v) for v in values])
+        else:
+            column = np.array(["" if v is None else v if isinstance(v, str) else json.dumps(np.asarray(v).tolist())
+                               for v in values], dtype=str)
+        out["database_name" if key == "database" else key] = ("case", column)
+    return out
 
 
 def case_dataset(ds, name: str):
-    """The result of one case of a sweep, in the layout of `solubility.solvus`.
+    """One case of a sweep in the layout of `solubility.solvus`: its own temperatures, no padding elsewhere.
 
-    Padding is dropped (temperatures the case did not ask for, and entries of other dims that hold only
-    padding, such as components of other systems); the case coordinates become attributes, ``database`` being
-    the database's own name (``database_input`` what the case gave) and ``pressure_Pa`` the pressure.
+    The case coordinates become attributes; ``database`` is the database's own name (``database_input`` what
+    the case gave) and ``pressure_Pa`` the pressure.
     """
     one = ds.sel(case=name)
     one = one.isel(T=np.flatnonzero(one["requested"].values)).drop_vars("requested")
-    for dim in [d for d in one.dims if d != "T"]:
-        one = one.isel({dim: _kept(one, dim)})
+    for dim in [d for d in one.dims if d != "T" and one.sizes[d]]:
+        keep = np.zeros(one.sizes[dim], dtype=bool)
+        for var in (v for v in one.data_vars.values() if dim in v.dims):
+            values = var.transpose(dim, ...).values.reshape(one.sizes[dim], -1)
+            pad = np.isnan(values) if values.dtype.kind == "f" else values == _fill(values.dtype)
+            keep |= ~pad.all(axis=1)
+        one = one.isel({dim: np.flatnonzero(keep)})
     attrs = dict(ds.attrs)
     for key in [k for k in one.coords if k not in one.dims and one[k].ndim == 0]:
-        attrs[str(key)] = _plain(one[key].values)
+        attrs[str(key)] = one[key].values.item()
         one = one.drop_vars(key)
     attrs.pop("job_sha256", None)
     attrs["database_input"] = attrs["database"]
@@ -265,112 +137,62 @@ def case_dataset(ds, name: str):
     return one
 
 
-def _kept(one, dim: str) -> np.ndarray:
-    """Indices along `dim` where some variable holds a value other than padding."""
-    keep = np.zeros(one.sizes[dim], dtype=bool)
-    if not keep.size:
-        return np.flatnonzero(keep)
-    for var in one.data_vars.values():
-        if dim in var.dims:
-            values = var.transpose(dim, ...).values.reshape(one.sizes[dim], -1)
-            fill = _fill(values.dtype)
-            pad = np.isnan(values) if values.dtype.kind == "f" else values == fill
-            keep |= ~pad.all(axis=1)
-    return np.flatnonzero(keep)
-
-
 def sweep_json(ds) -> dict[str, Any]:
-    """The JSON of a sweep: ``{"cases": [...]}``, one object per case in job order.
+    """``{"cases": [...]}``: per case ``name``, ``status``, ``error`` and the keys of `solubility.solvus`'s JSON
+    for its own temperatures (its per-point ``status`` renamed ``point_status``)."""
+    from solubility.results.dataset import solvus_json
 
-    Each holds ``name``, ``status`` ("ok"/"failed"), ``error``, then the keys of `solubility.solvus`'s JSON
-    (``temperature_K``, ``mole_fraction``, ``mass_fraction``, ``site_fraction``, ``partner_phases``,
-    ``converged``, ``reason``, ``partner_changes``, ``database``, ...) for the case's own temperatures, with
-    its per-point ``status`` list renamed ``point_status``. Missing numbers are NaN here (null once emitted).
-    """
     out = []
     for name in ds["case"].values.tolist():
         one = case_dataset(ds, name)
         entry = {"name": name, "status": one.attrs["case_status"], "error": one.attrs["case_error"]}
-        line = _solvus_json(one)
+        if "X" in one.data_vars:
+            line = solvus_json(one)
+        else:
+            n = one.sizes["T"]
+            line = {"temperature_K": [float(t) for t in one["T"].values], "mole_fraction": [None] * n,
+                    "mass_fraction": [None] * n, "site_fraction": [None] * n, "partner_phases": [[] for _ in range(n)],
+                    "converged": [False] * n, "status": [""] * n, "reason": [""] * n, "partner_changes": [],
+                    **{k: one.attrs.get(k, "") for k in ("database", "database_sha256", "phase", "solute")}}
         line["point_status"] = line.pop("status")
-        entry.update(line)
-        out.append(entry)
+        out.append({**entry, **line})
     return {"cases": out}
 
 
-def _solvus_json(one) -> dict[str, Any]:
-    if "X" in one.data_vars:
-        from solubility.results.dataset import solvus_json
-
-        return solvus_json(one)
-    n = one.sizes["T"]
-    return {
-        "temperature_K": [float(t) for t in one["T"].values],
-        "mole_fraction": [None] * n,
-        "mass_fraction": [None] * n,
-        "site_fraction": [None] * n,
-        "partner_phases": [[] for _ in range(n)],
-        "converged": [False] * n,
-        "status": [""] * n,
-        "reason": [""] * n,
-        "partner_changes": [],
-        "database": one.attrs.get("database"),
-        "database_sha256": one.attrs.get("database_sha256", ""),
-        "phase": one.attrs.get("phase"),
-        "solute": one.attrs.get("solute"),
-    }
-
-
-#: columns of the CSV table: case coordinates, then T and the per-point variables
-_CSV_CASE = ("case", *INPUT_COORDS)
-
-
 def csv_text(ds) -> str:
-    """The sweep as a CSV table, one row per requested (case, temperature); MU as one column per component."""
-    point_vars = [n for n in ds.data_vars if n != "requested" and ds[n].dims == ("case", "T")]
-    mu_vars = [n for n in ds.data_vars if len(ds[n].dims) == 3]
-    header = [*_CSV_CASE, "T", *point_vars]
-    for n in mu_vars:
+    """One row per requested (case, temperature): the case coordinates, T, the per-point variables, MU by component."""
+    points = [n for n in ds.data_vars if n != "requested" and ds[n].dims == ("case", "T")]
+    mus = [n for n in ds.data_vars if len(ds[n].dims) == 3]
+    header = ["case", *INPUT_COORDS, "T", *points]
+    for n in mus:
         header += [f"{n}_{c}" for c in ds[ds[n].dims[2]].values.tolist()]
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(header)
-    T = ds["T"].values
+    columns = {k: ds[k].values for k in ("case", *INPUT_COORDS, "T", *points, *mus)}
     for i in range(ds.sizes["case"]):
-        case_values = [_cell(ds[k].values[i]) for k in _CSV_CASE]
+        head = [_cell(columns[k][i]) for k in ("case", *INPUT_COORDS)]
         for j in np.flatnonzero(ds["requested"].values[i]):
-            row = [*case_values, _cell(T[j]), *(_cell(ds[n].values[i, j]) for n in point_vars)]
-            for n in mu_vars:
-                row += [_cell(v) for v in ds[n].values[i, j]]
-            writer.writerow(row)
+            row = [*head, _cell(columns["T"][j]), *(_cell(columns[n][i, j]) for n in points)]
+            writer.writerow(row + [_cell(v) for n in mus for v in columns[n][i, j]])
     return buffer.getvalue()
 
 
 def _cell(value: Any) -> str:
-    value = _plain(value)
-    if isinstance(value, float):
-        return "" if not np.isfinite(value) else repr(value)
+    value = value.item() if hasattr(value, "item") else value
     if isinstance(value, bool):
         return "true" if value else "false"
+    if isinstance(value, float):
+        return repr(value) if np.isfinite(value) else ""
     return str(value)
 
 
 def write_csv(ds, path: str | os.PathLike) -> None:
-    """Write `csv_text` of the sweep atomically to `path`."""
+    """Write `csv_text` of the sweep atomically."""
     atomic_write_text(path, csv_text(ds))
 
 
-def check_netcdf_engine() -> None:
-    """Raise an OutputError unless NetCDF-4 files can be written (h5netcdf and its h5py backend)."""
-    try:
-        import h5netcdf  # noqa: F401
-        import h5py  # noqa: F401
-    except ImportError:
-        raise OutputError("NetCDF output needs h5netcdf and h5py (dependencies of solubility): "
-                          "pip install h5netcdf h5py") from None
-
-
 def write_netcdf(ds, path: str | os.PathLike) -> None:
-    """Write the sweep Dataset atomically to `path` (NetCDF-4 through h5netcdf; strings as text)."""
-    check_netcdf_engine()
-    atomic_write(path, lambda tmp: ds.to_netcdf(tmp, engine="h5netcdf"))
+    """Write the sweep Dataset atomically (NetCDF-4, serialized in memory first so a full disk fails cleanly)."""
+    data = bytes(ds.to_netcdf(engine="h5netcdf"))
+    atomic_write(path, lambda tmp: tmp.write_bytes(data))

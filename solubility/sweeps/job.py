@@ -1,129 +1,310 @@
-"""Job files: TOML tables of cases, with defaults and cartesian products, validated before any work.
+"""Cases and TOML job files, validated before any work (imports nothing heavy: no pycalphad, no xarray).
 
 A job file has three optional top-level tables (at least one case in all):
 
 ``[defaults]``
     Any case key but ``name``; applied to every case and product that does not give the key itself (a key
-    given in a case replaces the default whole, tables such as ``fix`` are not merged).
+    given in a case replaces the default whole; tables such as ``fix`` are not merged).
 ``[[case]]``
-    One case per table: ``name``, ``database``, ``phase``, ``solute``, ``temperatures`` (required, unless
-    in the defaults), ``exclude``, ``fix``, ``pressure``.
+    One case per table: ``name``, ``database``, ``phase``, ``solute``, ``temperatures`` (required, unless in
+    the defaults), ``exclude``, ``fix``, ``balance``, ``pressure``.
 ``[[product]]``
-    Many cases at once: the keys of a case, where ``name`` is a template, plus a ``[product.vary]`` table
-    whose every key holds a list of alternatives; one case is made for every combination (the first key varies
-    slowest). ``vary.fix`` is either a table of element = list of u-fractions (each element varies on its
-    own) or a list of whole ``fix`` tables. The template refers to the varied values as ``{phase}``,
-    ``{database}``, ``{fix.CR}``, ``{temperatures}``, ... and to the combination number as ``{index}``
-    (from 1).
+    Many cases at once: the keys of a case, where ``name`` is a template, plus a ``[product.vary]`` table whose
+    every key holds a list of alternatives; one case is made for every combination (the first key varies
+    slowest). ``vary.fix`` is a table of element = list of u-fractions (each element varies on its own) or a
+    list of whole ``fix`` tables. The template refers to the varied values as ``{phase}``, ``{fix.CR}``,
+    ``{pressure}``, ... and to the combination number as ``{index}`` (from 1).
 
-Cases come in the order of the file: every ``[[case]]``, then every product's combinations.
+Numbers in names are written one way (`number_label`): the shortest text that reads back to the same value,
+plain from 1e-3 to below 1e5 (``1000``, ``0.02``), with a power of ten outside (``1e5``, ``2.5e9``, ``1e-4``),
+never with ``+`` or leading zeros in the exponent. A job expands to at most `MAX_CASES` cases; the count is
+made before anything is expanded. Values are checked by the validators of `solubility.calc.inputs` (the same
+rules as the Python API and the other commands): u-fractions in (0, 1), pressures > 0 Pa.
 """
 
 from __future__ import annotations
 
+import dataclasses
+import difflib
+import hashlib
 import itertools
+import json
+import math
 import os
 import re
 import tomllib
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
+from decimal import Decimal
 from pathlib import Path
 from typing import Any
 
-from solubility.errors import JobError
-from solubility.sweeps.case import CASE_KEYS, Case, _kind, check_keys, check_unique_names, suggest
+from solubility.calc.inputs import check_fix, check_pressure, parse_temperatures
+from solubility.errors import InputError, JobError
 
-__all__ = ["parse_job", "read_job"]
+__all__ = ["CASE_KEYS", "MAX_CASES", "Case", "job_sha256", "number_label", "parse_job", "read_job"]
 
-TOP_KEYS = ("defaults", "case", "product")
-DEFAULT_KEYS = tuple(k for k in CASE_KEYS if k != "name")
-PRODUCT_KEYS = (*CASE_KEYS, "vary")
-VARY_KEYS = DEFAULT_KEYS
+#: the most cases one job may hold (a product is counted before it is expanded)
+MAX_CASES = 10_000
+CASE_KEYS = ("name", "database", "phase", "solute", "temperatures", "exclude", "fix", "balance", "pressure")
+REQUIRED = ("name", "database", "phase", "solute", "temperatures")
+_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_#]*$")
 _PLACEHOLDER = re.compile(r"\{([^{}]*)\}")
 
 
-def read_job(path: str | os.PathLike) -> list[Case]:
-    """Read and validate a TOML job file.
+def _kind(value: Any) -> str:
+    for types, name in ((bool, "a boolean"), ((int, float), "a number"), (str, "a string"), (Mapping, "a table"),
+                        ((list, tuple), "a list")):
+        if isinstance(value, types):
+            return name
+    return f"a {type(value).__name__}"
+
+
+def _text(value: Any, what: str) -> str:
+    if isinstance(value, os.PathLike):
+        value = os.fspath(value)
+    if not isinstance(value, str) or not value.strip() or any(ord(c) < 32 or ord(c) == 127 for c in value):
+        raise InputError(f"expected {what}, got {_kind(value)} ({value!r})")
+    return value.strip()
+
+
+def _symbol(value: Any, what: str, pattern: re.Pattern = _NAME) -> str:
+    text = _text(value, what)
+    if not pattern.match(text):
+        raise InputError(f"{value!r} is not {what}")
+    return text.upper()
+
+
+def _element(value: Any) -> str:
+    return _symbol(value, "an element symbol (one or two letters, such as 'C' or 'CR')", re.compile(r"^[A-Za-z]{1,2}$"))
+
+
+def _phase(value: Any) -> str:
+    return _symbol(value, "a phase name (letters, digits, '_' and '#', such as 'BCC_A2')")
+
+
+def _temperatures(value: Any) -> tuple[float, ...]:
+    if not isinstance(value, str | Sequence) and not hasattr(value, "tolist"):
+        raise InputError(f"expected a 'START:STOP:STEP' string or a list of numbers, got {_kind(value)}")
+    if not isinstance(value, str) and any(isinstance(t, bool) or not isinstance(t, int | float) for t in list(value)):
+        raise InputError(f"expected a list of numbers in K, got {value!r}")
+    values = [round(float(t), 6) for t in parse_temperatures(value)]  # 1 uK: grids written differently share points
+    if any(b <= a for a, b in itertools.pairwise(values)):
+        raise InputError("temperatures must be strictly increasing")
+    return tuple(values)
+
+
+def _exclude(value: Any) -> tuple[str, ...]:
+    if isinstance(value, str) or not isinstance(value, Sequence):
+        raise InputError(f"expected a list of phase names, got {_kind(value)} ({value!r})")
+    return tuple(sorted({_phase(p) for p in value}))
+
+
+def _pressure(value: Any) -> float:
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise InputError(f"expected a number, got {_kind(value)} ({value!r})")
+    return check_pressure(value)
+
+
+_CHECKS = {"name": lambda v: _text(v, "a name"), "database": lambda v: _text(v, "a path or a bundled database name"),
+           "phase": _phase, "solute": _element, "temperatures": _temperatures, "exclude": _exclude,
+           "balance": lambda v: None if v is None else _element(v), "pressure": _pressure}
+
+
+def _fix(value: Any, where: str) -> tuple[tuple[str, float], ...]:
+    """A table {element: u} -> sorted pairs, each u checked on its own (naming ``fix.EL``), then the sum."""
+    items = value.items() if isinstance(value, Mapping) else value
+    try:
+        pairs = [(_element(el), u) for el, u in items]
+    except (TypeError, ValueError, InputError):
+        raise JobError(f"{where}: key 'fix': expected a table of element = u-fraction, got {_kind(value)}") from None
+    for el, u in pairs:
+        if isinstance(u, bool) or not isinstance(u, int | float):
+            raise JobError(f"{where}: key 'fix.{el}': expected a number, got {_kind(u)} ({u!r})")
+        try:
+            check_fix({el: u})
+        except InputError as exc:
+            raise JobError(f"{where}: key 'fix.{el}': {exc}") from None
+    if len({el for el, _ in pairs}) < len(pairs):
+        raise JobError(f"{where}: key 'fix': an element is given twice")
+    try:
+        return tuple(sorted(check_fix(dict(pairs)).items()))
+    except InputError as exc:
+        raise JobError(f"{where}: key 'fix': {exc}") from None
+
+
+@dataclasses.dataclass(frozen=True)
+class Case:
+    """The inputs of one solvus line in a sweep, validated and normalized on construction.
 
     Parameters
     ----------
-    path
-        The job file. A ``database`` value naming a file that exists relative to the job file's folder is
-        made an absolute path; any other value is kept (a bundled database name or a path from the current
-        folder).
-
-    Returns
-    -------
-    list of Case
-        The cases, in the order of the file (``[[case]]`` tables, then each product's combinations).
+    name
+        Unique name of the case in its sweep (the ``case`` coordinate).
+    database
+        TDB path or bundled database name (`read_job` makes paths relative to the job file absolute).
+    phase, solute
+        Host phase (``"BCC_A2"``) and interstitial element (``"C"``), upper-cased.
+    temperatures
+        K: ``"START:STOP:STEP"`` (STOP included) or numbers; stored strictly increasing, rounded to 1 uK.
+    exclude
+        Phases left out of the equilibrium, stored sorted.
+    fix
+        u-fractions of other host elements, each in (0, 1), summing to less than 1 (as in `solubility.solvus`);
+        stored as sorted ``(element, u)`` pairs.
+    balance
+        The host's balance element, or None to let the solvus find it.
+    pressure
+        Pa, > 0 (default 101325).
 
     Raises
     ------
     JobError
-        The file cannot be read, is not valid TOML (the message gives the line), or a table has a missing,
-        unknown or invalid key, or two cases share a name; the message names the case and the key.
+        A value is missing, of the wrong type or out of range; the message names the case and the key.
+    """
+
+    name: str
+    database: str
+    phase: str
+    solute: str
+    temperatures: tuple[float, ...]
+    exclude: tuple[str, ...] = ()
+    fix: tuple[tuple[str, float], ...] = ()
+    balance: str | None = None
+    pressure: float = 101325.0
+
+    def __post_init__(self) -> None:
+        named = isinstance(self.name, str) and self.name.strip()
+        where = f"case {self.name.strip()!r}" if named else "case"
+        for key, check in _CHECKS.items():
+            try:
+                object.__setattr__(self, key, check(getattr(self, key)))
+            except InputError as exc:
+                raise JobError(f"{where}: key {key!r}: {exc}") from None
+        object.__setattr__(self, "fix", _fix(self.fix, where))
+        if self.solute in self.fix_dict:
+            raise JobError(f"{where}: key 'fix.{self.solute}': the solute cannot also be a fixed host element")
+        if self.balance is not None and (self.balance in self.fix_dict or self.balance == self.solute):
+            raise JobError(f"{where}: key 'balance': {self.balance!r} is also the solute or a fixed element")
+        if self.phase in self.exclude:
+            raise JobError(f"{where}: key 'exclude': the host phase {self.phase!r} cannot be excluded")
+
+    @classmethod
+    def from_mapping(cls, mapping: Mapping[str, Any], where: str = "case") -> Case:
+        """A case from a mapping of `CASE_KEYS`; errors name `where` (a missing or unknown key too)."""
+        check_keys(mapping, where, CASE_KEYS, REQUIRED)
+        try:
+            return cls(**mapping)
+        except JobError as exc:  # name the place in the job file rather than the case name alone
+            raise JobError(f"{where}: {str(exc).split(': ', 1)[1]}") from None
+
+    @property
+    def fix_dict(self) -> dict[str, float]:
+        return dict(self.fix)
+
+    @property
+    def solvus_fix(self) -> dict[str, float] | None:
+        """The u-fractions as `solubility.solvus` takes them."""
+        return self.fix_dict or None
+
+    @property
+    def system_key(self) -> tuple:
+        """What the compiled system depends on (database, elements, phases): cases sharing it reuse one system."""
+        return (self.database, self.solute, tuple(self.fix_dict), self.balance, self.exclude)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The normalized inputs as JSON values."""
+        return {**dataclasses.asdict(self), "temperatures": list(self.temperatures), "exclude": list(self.exclude),
+                "fix": self.fix_dict}
+
+    def sha256(self) -> str:
+        return _digest(self.to_dict())
+
+
+def _digest(obj: Any) -> str:
+    return hashlib.sha256(json.dumps(obj, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
+
+
+def job_sha256(cases: Sequence[Case]) -> str:
+    """SHA-256 of the canonical JSON of the normalized cases, in order."""
+    return _digest([c.to_dict() for c in cases])
+
+
+def suggest(word: str, accepted: Sequence[str]) -> str:
+    close = difflib.get_close_matches(str(word), list(accepted), n=1, cutoff=0.6)
+    return f"; did you mean {close[0]!r}?" if close else f" (accepted: {', '.join(accepted)})"
+
+
+def check_keys(mapping: Any, where: str, accepted: Sequence[str], required: Sequence[str] = ()) -> None:
+    """A JobError for a value that is not a table, the first unknown key (with a suggestion) or a missing key."""
+    if not isinstance(mapping, Mapping):
+        raise JobError(f"{where}: expected a table, got {_kind(mapping)}")
+    for key in mapping:
+        if key not in accepted:
+            raise JobError(f"{where}: key {key!r} is unknown{suggest(key, accepted)}")
+    for key in required:
+        if key not in mapping:
+            raise JobError(f"{where}: key {key!r} is missing (required: {', '.join(required)})")
+
+
+def check_unique_names(cases: Sequence[Case], where: Sequence[str]) -> None:
+    first: dict[str, int] = {}
+    for i, case in enumerate(cases):
+        if case.name in first:
+            there = where[first[case.name]].split(": ", 1)[-1]
+            raise JobError(f"{where[i]}: key 'name': {case.name!r} is already the name of {there}")
+        first[case.name] = i
+
+
+def read_job(path: str | os.PathLike) -> list[Case]:
+    """Read and validate a TOML job file; database paths that exist beside the job file are made absolute.
+
+    Raises
+    ------
+    JobError
+        The file cannot be read, is not TOML (the message gives the line), a table has a missing, unknown or
+        invalid key, two cases share a name, or the job expands to more than `MAX_CASES` cases.
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise JobError(f"job file {str(p)!r} does not exist") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise JobError(f"job file {str(p)!r} cannot be read: {exc}") from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise JobError(f"{p.name}: invalid TOML: {exc}") from None
+    except (tomllib.TOMLDecodeError, RecursionError) as exc:
+        raise JobError(f"{p.name}: invalid TOML: {exc or 'nested too deeply'}") from None
     return parse_job(data, source=p.name, folder=p.parent)
 
 
-def parse_job(
-    data: Mapping[str, Any], *, source: str = "job", folder: str | os.PathLike | None = None
-) -> list[Case]:
-    """Validate a job given as a mapping (the parsed TOML) and return its cases.
-
-    Parameters
-    ----------
-    data
-        Mapping with the optional keys ``defaults``, ``case`` and ``product`` (see the module docstring).
-    source
-        Name used at the start of every error message (the job file's name).
-    folder
-        Folder against which relative database paths are resolved (None: leave them as given).
-
-    Raises
-    ------
-    JobError
-        As `read_job`.
-    """
-    check_keys(data, source, TOP_KEYS, ())
-    defaults = _table(data.get("defaults", {}), f"{source}: [defaults]")
-    check_keys(defaults, f"{source}: [defaults]", DEFAULT_KEYS, ())
-    entries: list[tuple[str, dict[str, Any]]] = []
-    for i, table in enumerate(_tables(data, "case", source), start=1):
-        where = _case_where(source, i, table)
-        check_keys(table, where, CASE_KEYS, ())
+def parse_job(data: Mapping[str, Any], *, source: str = "job", folder: str | os.PathLike | None = None) -> list[Case]:
+    """The cases of a parsed job (see the module docstring); `folder` resolves relative database paths."""
+    check_keys(data, source, ("defaults", "case", "product"))
+    defaults = data.get("defaults", {})
+    check_keys(defaults, f"{source}: [defaults]", CASE_KEYS[1:])
+    tables = {key: _tables(data, key, source) for key in ("case", "product")}
+    for i, table in enumerate(tables["product"], start=1):
+        check_keys(table, f"{source}: product {i}", (*CASE_KEYS, "vary"), ("name", "vary"))
+    products = [(t, _axes(t["vary"], f"{source}: product {i}")) for i, t in enumerate(tables["product"], start=1)]
+    total = len(tables["case"]) + sum(math.prod(len(v) for _, v in axes) for _, axes in products)
+    if total > MAX_CASES:
+        raise JobError(f"{source}: the job expands to {total:,} cases; at most {MAX_CASES:,} are accepted in one"
+                       " job (split it into several jobs)")
+    entries = []
+    for i, table in enumerate(tables["case"], start=1):
+        name = table.get("name") if isinstance(table, Mapping) else None
+        where = f"{source}: case {i} ({name!r})" if isinstance(name, str) else f"{source}: case {i}"
+        check_keys(table, where, CASE_KEYS)
         entries.append((where, {**defaults, **table}))
-    for i, table in enumerate(_tables(data, "product", source), start=1):
-        entries.extend(_expand(table, defaults, f"{source}: product {i}"))
+    for i, (table, axes) in enumerate(products, start=1):
+        entries.extend(_expand(table, axes, defaults, f"{source}: product {i}"))
     if not entries:
         raise JobError(f"{source}: no cases; add [[case]] or [[product]] tables")
-    cases = [Case.from_mapping(_resolve(mapping, folder), where) for where, mapping in entries]
+    cases = [Case.from_mapping(_resolve(m, folder), where) for where, m in entries]
     check_unique_names(cases, [where for where, _ in entries])
     return cases
 
 
-def _case_where(source: str, i: int, table: Any) -> str:
-    name = table.get("name") if isinstance(table, Mapping) else None
-    return f"{source}: case {i} ({name!r})" if isinstance(name, str) else f"{source}: case {i}"
-
-
-def _table(value: Any, where: str) -> Mapping[str, Any]:
-    if not isinstance(value, Mapping):
-        raise JobError(f"{where}: expected a table, got {_kind(value)}")
-    return value
-
-
-def _tables(data: Mapping[str, Any], key: str, source: str) -> list[Mapping[str, Any]]:
+def _tables(data: Mapping[str, Any], key: str, source: str) -> list:
     value = data.get(key, [])
     if isinstance(value, Mapping):
         raise JobError(f"{source}: [{key}] must be an array of tables: write [[{key}]]")
@@ -133,103 +314,79 @@ def _tables(data: Mapping[str, Any], key: str, source: str) -> list[Mapping[str,
 
 
 def _resolve(mapping: dict[str, Any], folder: str | os.PathLike | None) -> dict[str, Any]:
-    """Make a database path relative to the job file absolute when that file exists."""
     db = mapping.get("database")
     if folder is None or not isinstance(db, str) or not db.strip() or Path(db).is_absolute():
         return mapping
     candidate = Path(folder) / db.strip()
-    if candidate.is_file():
-        return {**mapping, "database": str(candidate.resolve())}
-    return mapping
+    return {**mapping, "database": str(candidate.resolve())} if candidate.is_file() else mapping
 
 
-def _expand(table: Mapping[str, Any], defaults: Mapping[str, Any], where: str) -> list[tuple[str, dict]]:
-    """The (where, mapping) of every combination of a ``[[product]]`` table."""
-    check_keys(table, where, PRODUCT_KEYS, ("name", "vary"))
-    template = table["name"]
-    if not isinstance(template, str) or not template.strip():
-        raise JobError(f"{where}: key 'name': expected a name template string, got {_kind(template)}")
-    axes = _axes(_table(table["vary"], f"{where}: [product.vary]"), where)
-    fixed = {k: v for k, v in table.items() if k not in ("name", "vary")}
-    out = []
-    for index, combination in enumerate(itertools.product(*(values for _, values in axes)), start=1):
-        mapping: dict[str, Any] = {**defaults, **fixed}
-        labels: dict[str, str] = {"index": str(index)}
-        for (key, _), value in zip(axes, combination, strict=True):
-            _assign(mapping, labels, key, value)
-        name = _render(template, labels, where)
-        mapping["name"] = name
-        out.append((f"{where}, combination {index} ({name!r})", mapping))
-    return out
-
-
-def _axes(vary: Mapping[str, Any], where: str) -> list[tuple[str, list[Any]]]:
-    """Each varied key (``fix.EL`` for an element varied on its own) with its list of alternatives."""
+def _axes(vary: Any, where: str) -> list[tuple[str, list]]:
+    """Each varied key (``fix.EL`` for an element varied on its own) with its non-empty list of alternatives."""
+    check_keys(vary, f"{where}: [product.vary]", CASE_KEYS[1:])
     if not vary:
         raise JobError(f"{where}: [product.vary] is empty; give at least one key with a list of alternatives")
-    check_keys(vary, f"{where}: [product.vary]", VARY_KEYS, ())
-    axes = []
-    for key, values in vary.items():
-        if key == "fix" and isinstance(values, Mapping):
-            for element, fractions in values.items():
-                axes.append((f"fix.{element}", _alternatives(fractions, where, f"vary.fix.{element}")))
-        else:
-            axes.append((key, _alternatives(values, where, f"vary.{key}")))
+    split = [(f"fix.{el}", v) for el, v in vary["fix"].items()] if isinstance(vary.get("fix"), Mapping) else []
+    axes = [(k, v) for k, v in vary.items() if not (k == "fix" and split)] + split
+    for key, values in axes:
+        if not isinstance(values, list) or not values:
+            got = "an empty list" if values == [] else f"{_kind(values)} ({values!r})"
+            raise JobError(f"{where}: key 'vary.{key}': expected a list of alternatives, got {got}")
     return axes
 
 
-def _alternatives(values: Any, where: str, key: str) -> list[Any]:
-    if not isinstance(values, list):
-        raise JobError(
-            f"{where}: key {key!r}: expected a list of alternatives, got {_kind(values)} ({values!r})"
-        )
-    if not values:
-        raise JobError(f"{where}: key {key!r}: the list of alternatives is empty")
-    return values
+def _expand(table: Mapping[str, Any], axes: list, defaults: Mapping[str, Any], where: str) -> list[tuple[str, dict]]:
+    template = table["name"]
+    if not isinstance(template, str) or not template.strip():
+        raise JobError(f"{where}: key 'name': expected a name template string, got {_kind(template)}")
+    fixed = {k: v for k, v in table.items() if k not in ("name", "vary")}
+    out = []
+    for index, combination in enumerate(itertools.product(*(v for _, v in axes)), start=1):
+        mapping, labels = {**defaults, **fixed}, {"index": str(index)}
+        for (key, _), value in zip(axes, combination, strict=True):
+            if key.startswith("fix."):
+                mapping["fix"] = {**(mapping.get("fix") if isinstance(mapping.get("fix"), Mapping) else {}),
+                                  key[4:]: value}
+            else:
+                mapping[key] = value
+                if key == "fix" and isinstance(value, Mapping):
+                    labels.update({f"fix.{el}": label(u) for el, u in value.items()})
+            labels[key] = label(value)
+        mapping["name"] = _render(template, labels, where)
+        out.append((f"{where}, combination {index} ({mapping['name']!r})", mapping))
+    return out
 
 
-def _assign(mapping: dict[str, Any], labels: dict[str, str], key: str, value: Any) -> None:
-    """Put one varied value into the case mapping and its label(s) into `labels`."""
-    if key.startswith("fix."):
-        element = key[4:]
-        mapping["fix"] = {**_as_table(mapping.get("fix", {})), element: value}
-        labels[key] = _label(value)
-    elif key == "fix":
-        mapping["fix"] = value
-        if isinstance(value, Mapping):
-            labels.update({f"fix.{el}": _label(u) for el, u in value.items()})
-        labels["fix"] = _label(value)
-    else:
-        mapping[key] = value
-        labels[key] = _label(value)
+def number_label(value: float) -> str:
+    """A number as it appears in a case name: ``1e5``, ``2.5e9``, ``1e-4``, ``1000``, ``0.02`` (no ``+``)."""
+    if value == 0 or 1e-3 <= abs(value) < 1e5:
+        text = repr(float(value))
+        return text[:-2] if text.endswith(".0") else text
+    sign, digits, exponent = Decimal(repr(float(value))).normalize().as_tuple()  # the shortest digits
+    mantissa = "".join(map(str, digits))
+    mantissa = mantissa[0] + (f".{mantissa[1:]}" if len(mantissa) > 1 else "")
+    return f"{'-' if sign else ''}{mantissa}e{exponent + len(digits) - 1}"
 
 
-def _as_table(value: Any) -> dict[str, Any]:
-    return dict(value) if isinstance(value, Mapping) else {}
-
-
-def _label(value: Any) -> str:
+def label(value: Any) -> str:
     """A short text for a varied value in a name template."""
-    if isinstance(value, float):
-        return f"{value:g}"
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        return number_label(value)
     if isinstance(value, Mapping):
-        return "-".join(f"{k}{_label(v)}" for k, v in value.items()) or "none"
+        return "-".join(f"{k}{label(v)}" for k, v in value.items()) or "none"
     if isinstance(value, list):
         if value and all(isinstance(v, int | float) and not isinstance(v, bool) for v in value):
-            return f"{min(value):g}-{max(value):g}"
-        return "-".join(_label(v) for v in value) or "none"
+            return f"{number_label(min(value))}-{number_label(max(value))}"
+        return "-".join(label(v) for v in value) or "none"
     text = str(value)
     return Path(text).stem if (os.sep in text or text.lower().endswith(".tdb")) else text
 
 
 def _render(template: str, labels: Mapping[str, str], where: str) -> str:
     def replace(match: re.Match) -> str:
-        field = match.group(1)
-        if field not in labels:
-            raise JobError(
-                f"{where}: key 'name': placeholder {{{field}}} is not a varied key"
-                f"{suggest(field, sorted(labels))}"
-            )
-        return labels[field]
+        if match.group(1) not in labels:
+            raise JobError(f"{where}: key 'name': placeholder {{{match.group(1)}}} is not a varied key"
+                           f"{suggest(match.group(1), sorted(labels))}")
+        return labels[match.group(1)]
 
     return _PLACEHOLDER.sub(replace, template)

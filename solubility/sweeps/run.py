@@ -1,133 +1,147 @@
-"""`sweep`: run many solvus cases in parallel, store each as it finishes, return one Dataset by ``case``."""
+"""`sweep`: run many solvus cases (this process, a local process pool or dask.distributed), store, assemble.
+
+Local workers are a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where the platform has
+it (the server imports the solvus engine once; the calling process, which may run threads, is never forked)
+and "spawn" elsewhere. Cases are submitted grouped by compiled system (database, elements, phases), so that a
+worker mostly meets the system it has built already. On dask, a system's cases prefer one worker.
+"""
 
 from __future__ import annotations
 
-import os
+import asyncio
+import multiprocessing
+import re
+import signal
 import sys
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from typing import Any
 
 from solubility import errors
 from solubility.errors import InputError, JobError, SolubilityError
 from solubility.sweeps.assemble import assemble
-from solubility.sweeps.case import Case, check_unique_names, job_sha256
-from solubility.sweeps.executors import DaskExecutor, LocalPool, SerialExecutor, default_workers
-from solubility.sweeps.store import CaseOutcome, Store, open_store
+from solubility.sweeps.job import Case, check_unique_names
+from solubility.sweeps.store import Store
 
-__all__ = ["check_databases", "sweep"]
+__all__ = ["DEFAULT_CONNECT_TIMEOUT", "check_databases", "run_case", "sweep"]
 
-#: progress callback: (cases done, cases in all, the case just finished, its status); called first with
-#: (cases finished in the store, cases in all, None, "start")
-ProgressCallback = Callable[[int, int, "Case | None", str], None]
+#: seconds to wait for a dask scheduler to answer before giving up
+DEFAULT_CONNECT_TIMEOUT = 10.0
+_ADDRESS = re.compile(r"^(tcp|tls)://(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9.-]+):(\d{1,5})$|^inproc://[\w./-]+$")
+#: modules the fork server imports once, so that workers start with them loaded
+PRELOAD = ("solubility.sweeps.run", "solubility.calc.boundary", "solubility.thermo.system", "xarray", "pycalphad")
 
 
-def sweep(
-    cases: Iterable[Case | Mapping[str, Any]],
-    *,
-    workers: int | None = None,
-    scheduler: Any = None,
-    store: str | os.PathLike | None = None,
-    resume: bool = False,
-    progress: bool | ProgressCallback | None = None,
-    strict: bool = False,
-    overwrite: bool = False,
-):
+def run_case(case: Case) -> tuple[str, Any]:
+    """``("", Dataset)`` for a case computed by `solubility.solvus`, ``("Type: message", None)`` if it failed."""
+    from solubility import solvus
+
+    try:
+        return "", solvus(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
+                          fix=case.solvus_fix, balance=case.balance, pressure=case.pressure)
+    except Exception as exc:  # a sweep records the failure of one case and goes on
+        return one_line(exc), None
+
+
+def one_line(exc: BaseException) -> str:
+    text = " ".join(str(exc).split())
+    return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
+
+
+def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = None, scheduler: Any = None,
+          store=None, resume: bool = False, progress: bool | Callable | None = None, strict: bool = False,
+          overwrite: bool = False, connect_timeout: float = DEFAULT_CONNECT_TIMEOUT):
     """Compute the solvus of many cases and gather them in one Dataset along ``case``.
 
     Parameters
     ----------
     cases
-        `Case` objects, or mappings with the keys of a case (as in a job file's ``[[case]]`` table), or the
-        list `read_job` returns. Names must be unique. Everything is validated, and every database is found,
-        before any case runs.
+        `Case` objects or mappings of the keys of a case (as `read_job` returns or a ``[[case]]`` table holds);
+        names unique. Everything is validated, and every database read, before any case runs.
     workers
-        Local worker processes (default: as many as there are CPUs, never more than cases to run). 0 runs the
-        cases one by one in this process. Not allowed together with `scheduler`.
+        Local worker processes (default: one per CPU, at most one per case); 0 runs the cases in this process.
     scheduler
-        Run on dask.distributed instead: a scheduler address (``"tcp://host:8786"``), a ``distributed.Client``
-        or a cluster such as ``distributed.LocalCluster``. Workers need the same databases at the same paths.
+        Run on dask.distributed instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
     store
-        Folder where every case is written (NetCDF) as soon as it finishes, with a manifest naming the job.
+        Folder where every finished case is written at once (see `solubility.sweeps.store`); locked while the
+        sweep runs.
     resume
-        Continue the store of an interrupted run of the same job: its finished cases are read back, not run
-        again (failed ones are run again).
+        Keep the finished cases of `store` (checked against their sha256) and run the others.
     progress
-        True: a tqdm progress bar on standard error. A callable ``f(done, total, case, status)`` is called
-        once before any case runs, with ``case=None, status="start"`` and `done` the cases taken from the
-        store, then after every case with the `Case` and its status. None or False: nothing.
+        True: a tqdm bar on standard error. A callable ``f(done, total, case, status)``: called first with
+        ``(cases taken from the store, total, None, "start")``, then after every case. None/False: nothing.
     strict
-        Stop at the first failed case and raise its error (named after the case) instead of recording it.
+        Raise the error of the first failed case (named after the case) instead of recording it.
     overwrite
-        Start the store afresh if it holds a store of another job, or of this job when not resuming (only the
-        store's own files are removed).
+        Start the store afresh when it holds another job, or this one when not resuming.
+    connect_timeout
+        Seconds to wait for the dask scheduler to answer.
 
     Returns
     -------
     xarray.Dataset
-        Dims ``case`` and ``T`` (the union of the cases' temperatures, K; ``requested`` marks each case's own
-        points, the others are NaN padding). Data: the variables of `solubility.solvus` (X, W, PPM, Y,
-        partner, converged, reason, MU, ...) with a leading ``case`` dim. Coordinates along ``case``: its
-        name, database, phase, solute, pressure (Pa), fix (JSON), exclude, status ("ok"/"failed") and error.
-        Identical whichever executor ran it, and whether or not it was resumed (but for ``created``).
+        See `solubility.sweeps.assemble`: dims ``case`` and ``T`` (the union of the cases' temperatures, K),
+        ``requested`` marking each case's own points, the solvus variables, and the inputs and per-case
+        results as coordinates along ``case``. The same whichever executor ran it, and whether resumed.
 
     Raises
     ------
-    JobError
-        A case is invalid, two share a name, or a database is not found (before any work).
+    JobError, InputError
+        A case or option is invalid, or a database lacks what a case asks for (before any work).
     OutputError
-        The store cannot be used (see `open_store`) or a case file cannot be written (the store stays
-        resumable).
-    SolubilityError
-        With `strict`, the error of the first failed case, its message prefixed by the case name.
+        The store cannot be used, is locked by a running sweep, is damaged (`DamagedStoreError`) or cannot be written.
     """
     case_list = _as_cases(cases)
     if scheduler is not None and workers is not None:
         raise InputError("give workers or scheduler, not both (dask workers are set up on the cluster)")
     if resume and store is None:
         raise InputError("resume needs a store (the folder of the run to resume)")
-    executor = _executor(workers, scheduler)
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 0):
+        raise InputError(f"workers must be a whole number >= 0 (0: run in this process), got {workers!r}")
+    if isinstance(scheduler, str):
+        check_address(scheduler)
     check_databases(case_list)
-    job = job_sha256(case_list)
-    st = open_store(store, case_list, resume=resume, overwrite=overwrite) if store is not None else None
-    outcomes: dict[int, CaseOutcome] = st.finished() if (st is not None and resume) else {}
-    todo = [(i, c) for i, c in enumerate(case_list) if i not in outcomes]
-    report = _progress(progress, len(case_list), len(outcomes))
+    st = Store.open(store, case_list, resume=resume, overwrite=overwrite) if store is not None else None
     try:
-        _run(executor, todo, case_list, outcomes, st, report, strict)
+        results = st.finished() if (st is not None and resume) else {}
+        errors_: dict[int, str] = {}
+        todo = [(i, c) for i, c in enumerate(case_list) if i not in results]
+        report = _progress(progress, len(case_list), len(results))
+        outcomes: Any = ()
+        try:
+            if scheduler is not None:
+                outcomes = _dask(todo, scheduler, connect_timeout)
+            elif workers == 0:
+                outcomes = ((i, *run_case(c)) for i, c in todo)
+            else:
+                outcomes = _local(todo, min(workers or _cpus(), len(todo)))
+            for index, error, ds in outcomes:
+                if error:
+                    errors_[index] = error
+                    if strict:
+                        raise _case_error(case_list[index], error)
+                else:
+                    if st is not None:
+                        st.write(index, ds)
+                    results[index] = ds
+                report(case_list[index], "failed" if error else "ok")
+        finally:
+            getattr(report, "close", lambda: None)()
+            getattr(outcomes, "close", lambda: None)()  # a generator's finally: stop workers, cancel tasks
     finally:
-        report.close()
-    return assemble(case_list, outcomes, job)
+        if st is not None:
+            st.close()
+    return assemble(case_list, results, errors_)
 
 
-def _run(executor, todo, cases, outcomes, st: Store | None, report, strict: bool) -> None:
-    results = executor.run(todo)
-    try:
-        for index, outcome in results:
-            if st is not None:
-                st.write(index, outcome)
-            outcomes[index] = outcome
-            report.update(cases[index], outcome.status)
-            if strict and not outcome.ok:
-                raise _case_error(cases[index], outcome.error)
-    finally:
-        close = getattr(results, "close", None)
-        if close is not None:
-            close()
-
-
-def _as_cases(cases: Iterable[Case | Mapping[str, Any]]) -> list[Case]:
+def _as_cases(cases) -> list[Case]:
     if isinstance(cases, Case | Mapping | str):
-        raise JobError(
-            "cases must be a list of Case objects or of mappings; for a job file use read_job(path)"
-        )
+        raise JobError("cases must be a list of Case objects or of mappings; for a job file use read_job(path)")
     out = []
     for i, case in enumerate(cases, start=1):
-        if isinstance(case, Case):
-            out.append(case)
-        elif isinstance(case, Mapping):
-            out.append(Case.from_mapping(case, f"case {i}"))
-        else:
+        if not isinstance(case, Case | Mapping):
             raise JobError(f"case {i}: expected a Case or a mapping, got {type(case).__name__}")
+        out.append(case if isinstance(case, Case) else Case.from_mapping(case, f"case {i}"))
     if not out:
         raise JobError("no cases to run")
     check_unique_names(out, [f"case {i} ({c.name!r})" for i, c in enumerate(out, start=1)])
@@ -135,62 +149,33 @@ def _as_cases(cases: Iterable[Case | Mapping[str, Any]]) -> list[Case]:
 
 
 def check_databases(cases: list[Case]) -> None:
-    """Check every case against its database before any work: the file or bundled name, phases, elements.
-
-    Each database is read once (`solubility.databases.reader.load_database`, cached per process).
-
-    Raises
-    ------
-    JobError
-        Naming the case and the key: a database that is neither a file nor a bundled name or cannot be read,
-        a phase (host or excluded) or element (solute, fixed, balance) that the database lacks, a host phase
-        without an interstitial sublattice for the solute, or fixed contents outside (0, 1).
-    """
-    from solubility.calc.inputs import check_fix, host_elements
+    """Check every case against its database before any work (each database read once), naming case and key."""
+    from solubility.calc.inputs import host_elements
     from solubility.databases.reader import check_elements, check_phases, load_database
 
     loaded: dict[str, Any] = {}
     for case in cases:
         where = f"case {case.name!r}"
         try:
-            if case.database not in loaded:
-                loaded[case.database] = load_database(case.database)
+            ldb = loaded[case.database] = loaded.get(case.database) or load_database(case.database)
         except SolubilityError as exc:
             raise JobError(f"{where}: key 'database': {exc}") from None
-        ldb = loaded[case.database]
-        checks: list[tuple[str, Callable, list[str]]] = [
-            ("phase", check_phases, [case.phase]),
-            ("exclude", check_phases, list(case.exclude)),
-            ("solute", check_elements, [case.solute]),
-            ("fix", check_elements, [el for el, _ in case.fix]),
-            ("balance", check_elements, [case.balance] if case.balance else []),
-        ]
-        for key, check, names in checks:
+        for key, check, names in (("phase", check_phases, [case.phase]), ("exclude", check_phases, case.exclude),
+                                  ("solute", check_elements, [case.solute]),
+                                  ("fix", check_elements, list(case.fix_dict)),
+                                  ("balance", check_elements, [case.balance] if case.balance else [])):
             try:
                 if names:
-                    check(ldb, names)
+                    check(ldb, list(names))
             except SolubilityError as exc:
                 raise JobError(f"{where}: key {key!r}: {exc}") from None
-        try:  # the host must be (hosts)a(X,VA)c over the case's elements, with valid fixed contents
-            host_elements(ldb, case.phase, case.solute, check_fix(dict(case.fix)), case.balance)
+        try:  # the host must be (hosts)a(X,VA)c over the case's elements
+            host_elements(ldb, case.phase, case.solute, case.fix_dict, case.balance)
         except SolubilityError as exc:
             raise JobError(f"{where}: {exc}") from None
 
 
-def _executor(workers: int | None, scheduler: Any):
-    if scheduler is not None:
-        return DaskExecutor(scheduler)
-    if workers is None:
-        workers = default_workers()
-    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 0:
-        raise InputError(f"workers must be a whole number >= 0 (0: run in this process), got {workers!r}")
-    if workers == 0:
-        return SerialExecutor()
-    return LocalPool(workers)
-
-
 def _case_error(case: Case, message: str) -> SolubilityError:
-    """The error of a failed case as the tool's own exception type when it was one, else SolubilityError."""
     kind, _, text = message.partition(": ")
     cls = getattr(errors, kind, None)
     if isinstance(cls, type) and issubclass(cls, SolubilityError):
@@ -198,37 +183,140 @@ def _case_error(case: Case, message: str) -> SolubilityError:
     return SolubilityError(f"case {case.name!r} failed: {message}")
 
 
-class _Progress:
-    """Progress reporting: a tqdm bar, a callback, or nothing."""
-
-    def __init__(
-        self, total: int, done: int, bar: Any = None, callback: ProgressCallback | None = None
-    ) -> None:
-        self.total, self.done, self.bar, self.callback = total, done, bar, callback
-        if callback is not None:
-            callback(done, total, None, "start")
-
-    def update(self, case: Case, status: str) -> None:
-        self.done += 1
-        if self.bar is not None:
-            self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
-            self.bar.update(1)
-        if self.callback is not None:
-            self.callback(self.done, self.total, case, status)
-
-    def close(self) -> None:
-        if self.bar is not None:
-            self.bar.close()
-
-
-def _progress(progress: bool | ProgressCallback | None, total: int, done: int) -> _Progress:
+def _progress(progress, total: int, done: int) -> Callable:
     if progress is None or progress is False:
-        return _Progress(total, done)
+        return lambda case, status: None
     if progress is True:
         from tqdm import tqdm
 
         bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
-        return _Progress(total, done, bar=bar)
-    if callable(progress):
-        return _Progress(total, done, callback=progress)
-    raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
+
+        def update(case, status):
+            bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
+            bar.update(1)
+
+        update.close = bar.close
+        return update
+    if not callable(progress):
+        raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
+    count = [done]
+    progress(done, total, None, "start")
+
+    def call(case, status):
+        count[0] += 1
+        progress(count[0], total, case, status)
+
+    return call
+
+
+def _cpus() -> int:
+    import os
+
+    return len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count() or 1
+
+
+def _ignore_sigint() -> None:
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group; the parent stops the workers
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _by_system(items: list[tuple[int, Case]]) -> list[tuple[int, Case]]:
+    first: dict[tuple, int] = {}
+    return sorted(items, key=lambda item: first.setdefault(item[1].system_key, len(first)))
+
+
+def _local(items: list[tuple[int, Case]], workers: int) -> Iterator[tuple[int, str, Any]]:
+    if not items:
+        return
+    method = "forkserver" if sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods() \
+        else "spawn"
+    ctx = multiprocessing.get_context(method)
+    if method == "forkserver":
+        ctx.set_forkserver_preload(list(PRELOAD))
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_ignore_sigint)
+    finished = False
+    try:
+        futures = {pool.submit(run_case, case): index for index, case in _by_system(items)}
+        for future in as_completed(futures):
+            try:
+                error, ds = future.result()
+            except Exception as exc:  # a worker died (killed, out of memory): BrokenProcessPool
+                error, ds = f"WorkerDied: {one_line(exc)}", None
+            yield futures[future], error, ds
+        finished = True
+    finally:
+        if not finished:  # interrupted: stop the workers now rather than after their current case
+            processes = list((getattr(pool, "_processes", None) or {}).values())
+            pool.shutdown(wait=False, cancel_futures=True)
+            for process in processes:
+                process.terminate()
+            for process in processes:
+                process.join(10)
+        pool.shutdown(wait=True)
+
+
+def check_address(address: str) -> str:
+    """Refuse a dask scheduler address that is not ``tcp://HOST:PORT`` (or ``tls://``), at once."""
+    match = _ADDRESS.match(address.strip()) if isinstance(address, str) else None
+    if not match or int(match.group(3) or 0) > 65535:
+        raise InputError(f"scheduler address {address!r} is not of the form tcp://HOST:PORT (such as "
+                         "tcp://127.0.0.1:8786)")
+    return address.strip()
+
+
+def _probe(address: str, timeout: float) -> None:
+    """Ask the scheduler who it is, bounded by `timeout` (a server that accepts and stays silent cannot hang us)."""
+    from distributed.comm import connect
+
+    async def identity():
+        comm = await connect(address, timeout=timeout)
+        try:
+            await comm.write({"op": "identity"})
+            return await comm.read()
+        finally:
+            await comm.close()
+
+    try:
+        answer = asyncio.run(asyncio.wait_for(identity(), timeout))
+    except (TimeoutError, OSError) as exc:
+        raise InputError(f"cannot reach the dask scheduler at {address} within {timeout:g} s"
+                         f"{': ' + one_line(exc) if str(exc) else ''}") from None
+    if not isinstance(answer, dict) or answer.get("type") != "Scheduler":
+        raise InputError(f"{address} did not answer as a dask scheduler")
+
+
+def _dask(items: list[tuple[int, Case]], scheduler: Any, timeout: float) -> Iterator[tuple[int, str, Any]]:
+    try:
+        import distributed
+    except ImportError:
+        raise InputError("a dask scheduler needs dask.distributed: pip install 'solubility[dask]'") from None
+    if not items:
+        return
+    if isinstance(scheduler, distributed.Client):
+        client, own = scheduler, False
+    elif isinstance(scheduler, str):
+        _probe(check_address(scheduler), timeout)
+        client, own = distributed.Client(scheduler.strip(), timeout=timeout, set_as_default=False), True
+    elif hasattr(scheduler, "scheduler_address"):  # a cluster object (LocalCluster, ...)
+        client, own = distributed.Client(scheduler, timeout=timeout, set_as_default=False), True
+    else:
+        raise InputError("scheduler must be an address tcp://HOST:PORT, a distributed.Client or a cluster, got "
+                         f"{type(scheduler).__name__}")
+    futures = {}
+    try:
+        workers = sorted(client.scheduler_info(n_workers=-1)["workers"]) or [None]
+        home: dict[tuple, Any] = {}
+        for index, case in items:
+            where = home.setdefault(case.system_key, workers[len(home) % len(workers)])
+            restrict = {"workers": [where], "allow_other_workers": True} if where else {}
+            futures[client.submit(run_case, case, pure=False, **restrict)] = index
+        for future in distributed.as_completed(list(futures), loop=client.loop):
+            try:
+                error, ds = future.result()
+            except Exception as exc:  # the cluster lost the task (a worker died, ...)
+                error, ds = one_line(exc), None
+            yield futures[future], error, ds
+    finally:
+        client.cancel(list(futures))
+        if own:
+            client.close()

@@ -8,13 +8,17 @@ Cases run on local worker processes (--workers, default: one per CPU) or on a da
 (--scheduler ADDRESS). With --store DIR each finished case is written to DIR at once; after an interruption,
 the same command with --resume runs only the cases not yet finished. A progress bar is shown on standard error
 when it is a terminal (not with --quiet), and a summary at the end. Exit status: 0 when every case succeeded,
-1 when some failed (their results are NaN with the message), 2 on an error.
+1 when some failed (their results are NaN with the message), 2 on an error, 130 on Ctrl-C and 143 on SIGTERM
+(workers stopped, temporary files removed, finished cases kept in the store).
 """
 
 from __future__ import annotations
 
 import argparse
+import os
+import signal
 import sys
+import threading
 import time
 
 
@@ -36,6 +40,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--workers", type=_workers, metavar="N", help="local worker processes (default: one per CPU; 0: none)"
     )
     where.add_argument("--scheduler", metavar="ADDRESS", help="run on the dask scheduler at ADDRESS")
+    parser.add_argument("--connect-timeout", type=float, default=10.0, metavar="S",
+                        help="seconds to wait for the dask scheduler to answer (default 10)")
     parser.add_argument("--store", metavar="DIR", help="write every finished case to folder DIR at once")
     parser.add_argument("--resume", action="store_true", help="keep finished cases of --store, run the rest")
     parser.add_argument(
@@ -84,33 +90,40 @@ def run(args: argparse.Namespace) -> int:
     from solubility.cli.commands._common import emit_json
     from solubility.errors import InputError
     from solubility.sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
-    from solubility.sweeps.assemble import check_netcdf_engine
+    from solubility.sweeps.run import check_address
 
     if args.resume and not args.store:
         raise InputError("--resume needs --store DIR (the folder of the run to resume)")
-    outputs = [(p, w) for p, w in ((args.netcdf, write_netcdf), (args.csv, write_csv)) if p]
-    for path, _ in outputs:
+    if not args.connect_timeout > 0 or args.connect_timeout > 3600:
+        raise InputError(f"--connect-timeout {args.connect_timeout:g} is outside (0, 3600] s")
+    outputs = [(o, p, w) for o, p, w in (("--netcdf", args.netcdf, write_netcdf), ("--csv", args.csv, write_csv)) if p]
+    _check_outputs_are_not_inputs(args, outputs, [])  # the job file first: with --overwrite it would be lost
+    for _, path, _ in outputs:
         check_output_path(path, overwrite=args.overwrite)
-    if args.netcdf:
-        check_netcdf_engine()
     cases = read_job(args.job)
+    _check_outputs_are_not_inputs(args, outputs, cases)
+    if args.scheduler is not None:
+        check_address(args.scheduler)
     started = time.perf_counter()
     counter = _Counter(show_bar=not args.quiet and sys.stderr.isatty())
+    main_thread = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, _terminated) if main_thread else None
     try:
-        ds = sweep(
-            cases,
-            workers=args.workers,
-            scheduler=args.scheduler,
-            store=args.store,
-            resume=args.resume,
-            progress=counter,
-            strict=args.strict,
-            overwrite=args.overwrite,
-        )
-    finally:
+        ds = sweep(cases, workers=args.workers, scheduler=args.scheduler, store=args.store, resume=args.resume,
+                   progress=counter, strict=args.strict, overwrite=args.overwrite,
+                   connect_timeout=args.connect_timeout)
+        for _, path, write in outputs:
+            write(ds, path)
+    except KeyboardInterrupt as exc:
         counter.close()
-    for path, write in outputs:
-        write(ds, path)
+        kept = f"; {counter.done} finished cases are in the store, rerun with --resume" if args.store else ""
+        how = "SIGTERM" if isinstance(exc, _Terminated) else "Ctrl-C"
+        print(f"error: sweep stopped by {how}: workers stopped, temporary files removed{kept}", file=sys.stderr)
+        return 143 if isinstance(exc, _Terminated) else 130
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, previous)
+        counter.close()
     if args.json:
         emit_json(sweep_json(ds))
     else:
@@ -121,15 +134,47 @@ def run(args: argparse.Namespace) -> int:
     return 0 if all(s == "ok" for s in ds["case_status"].values.tolist()) else 1
 
 
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that every `finally` runs (workers stopped, store unlocked)."""
+
+
+def _terminated(signum, frame) -> None:
+    raise _Terminated
+
+
+def _check_outputs_are_not_inputs(args: argparse.Namespace, outputs: list, cases) -> None:
+    """Refuse, before any work, an output that is the job file, a database of a case, or another output."""
+    from solubility.errors import InputError
+
+    inputs = {os.path.realpath(args.job): f"the job file {args.job}"}
+    for case in (c for c in cases if os.path.isfile(c.database)):
+        inputs.setdefault(os.path.realpath(case.database), f"the database of case {case.name!r}")
+    seen: dict[str, str] = {}
+    for option, path, _ in outputs:
+        real = os.path.realpath(path)
+        if real in inputs:
+            raise InputError(f"{option} {path!r} is {inputs[real]}; give another output file")
+        if real in seen:
+            raise InputError(f"{option} {path!r} is the same file as {seen[real]}; give two different files")
+        seen[real] = option
+    if args.store:
+        store = os.path.realpath(args.store)
+        for real, what in [*inputs.items(), *((r, o) for r, o in seen.items())]:
+            if real == store or real.startswith(store + os.sep):
+                raise InputError(f"--store {args.store!r} holds {what}; give a folder of its own")
+
+
 class _Counter:
     """Progress callback: counts the cases run here and drives a tqdm bar on a terminal."""
 
     def __init__(self, *, show_bar: bool) -> None:
         self.ran = 0
+        self.done = 0
         self.bar = None
         self.show_bar = show_bar
 
     def __call__(self, done: int, total: int, case, status: str) -> None:
+        self.done = done
         if case is None:  # the start: `done` cases come from the store
             if self.show_bar:
                 from tqdm import tqdm
@@ -144,3 +189,4 @@ class _Counter:
     def close(self) -> None:
         if self.bar is not None:
             self.bar.close()
+            self.bar = None
