@@ -30,6 +30,7 @@ _EXPORTS = {
     "audit_database": "databases.reader",
     "bundled_databases": "databases.reader",
     "solvus": "calc.boundary",
+    "uptake": "api",
     "sweep": "sweeps",
     "read_job": "sweeps",
     "Case": "sweeps",
