@@ -28,7 +28,7 @@ import numpy as np
 from solubility.errors import InputError
 from solubility.thermo.gas import P0, Atmosphere, R, atmosphere_potential, element_gas_reference
 
-__all__ = ["Surroundings", "UptakeLine", "UptakePoint", "compute_uptake", "solute_potential"]
+__all__ = ["Surroundings", "UptakeLine", "UptakePoint", "compute_uptake", "solute_potential", "stability_limit"]
 
 #: a driving force above this (J per mole of atoms) means the phase forms instead (as the solvus engine)
 DF_TOL = 1e-4
@@ -319,3 +319,37 @@ def _check(host: _Host, job, T, s, target, activity, derived, prev) -> UptakePoi
         return UptakePoint(T, s, mu, target, activity, derived, "metastable",
                            f"{job.phase} is metastable here: {text} forms instead", forms, max_df, phase_y)
     return UptakePoint(T, s, mu, target, activity, derived, "ok", "", (), max_df, phase_y)
+
+
+def stability_limit(job, temperatures: Sequence[float]):
+    """The surface map's exact boundary: the highest solute potential at which the host is the stable phase.
+
+    That potential is the host's own solvus (the smallest content at which another phase has zero driving force),
+    solved exactly by `solubility.calc.boundary.solvus_line`; here it is expressed as the solute's activity against
+    its reference and, for a gas element, as the equivalent pressure of X2 (Pa) and, for N, as the nitriding
+    potential K_N (atm^-1/2).
+
+    Returns
+    -------
+    line, activity, p_x2, k_n
+        The SolvusLine and three arrays over `temperatures` (nan where the host has no boundary).
+    """
+    from solubility.calc.boundary import solvus_line
+    from solubility.thermo.gas import nasa_gibbs
+
+    line = solvus_line(job.system, job.host, job.candidates, temperatures)
+    pot = solute_potential(job.database, job.solute, Surroundings("activity", 1.0), job.pressure)
+    k = job.system.elements.index(job.solute)
+    n = len(line.points)
+    activity, p_x2, k_n = np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan)
+    for i, p in enumerate(line.points):
+        if not p.valid:
+            continue
+        mu = float(p.mu[k])
+        activity[i] = math.exp((mu - pot.ref_gibbs(p.T)) / (R * p.T))
+        if job.solute in ("H", "N", "O"):
+            p_x2[i] = P0 * activity[i] ** 2
+        if job.solute == "N":
+            ln_q = (mu - nasa_gibbs("NH3", p.T) + 1.5 * nasa_gibbs("H2", p.T)) / (R * p.T)
+            k_n[i] = math.exp(ln_q) * math.sqrt(101325.0 / P0)
+    return line, activity, p_x2, k_n

@@ -17,7 +17,7 @@ from solubility import __version__
 from solubility.errors import SolubilityError
 
 #: subcommands in the order ``--help`` lists them
-COMMANDS = ("sites", "model", "databases", "audit", "solvus", "sweep")
+COMMANDS = ("sites", "model", "databases", "audit", "solvus", "uptake", "sweep")
 
 EXIT_OK = 0
 EXIT_USAGE = 2

@@ -33,7 +33,7 @@ import numpy as np
 
 from solubility.results.dataset import CAUTION, ZERO_CELSIUS, _composition, _versions
 
-__all__ = ["build_uptake_dataset", "sieverts_fit", "uptake_csv_text", "uptake_json"]
+__all__ = ["build_limit_dataset", "build_uptake_dataset", "sieverts_fit", "uptake_csv_text", "uptake_json"]
 
 #: molar volume of an ideal gas at 273.15 K and 101325 Pa, cm3/mol (R T / p with R = 8.314462618)
 V_STP = 22413.97
@@ -104,7 +104,7 @@ def build_uptake_dataset(line, job, surroundings, *, sieverts_range=None):
         data["KS_X"] = ("T", KS, {"units": "Pa-1/2", "long_name": "Sieverts constant x / sqrt(p)"})
         data["KS_CM3"] = ("T", W * 100.0 / M / 2.0 * V_STP / math.sqrt(p / _ATM),
                           {"units": "cm3(STP)/(100 g)/atm^1/2",
-                           "long_name": f"Sieverts constant, cm3 of {solute}2 (273.15 K, 1 atm) per 100 g per sqrt(atm)"})
+                           "long_name": f"Sieverts constant, cm3 {solute}2 (273.15 K, 1 atm) per 100 g per sqrt(atm)"})
         data["KS_PPM"] = ("T", W * 1e6 / math.sqrt(p / _BAR),
                           {"units": "ppm/bar^1/2", "long_name": "Sieverts constant, ppm by mass per sqrt(bar)"})
         dH, K0, used = sieverts_fit(T, np.where(statuses == "ok", KS, np.nan), sieverts_range)
@@ -201,3 +201,26 @@ def uptake_csv_text(ds) -> str:
                 row.append('"' + text.replace('"', '""') + '"' if ("," in text or '"' in text) else text)
         lines.append(",".join(row))
     return "\n".join(lines) + "\n"
+
+
+def build_limit_dataset(line, activity, p_x2, k_n, job):
+    """Dataset of the surface map's boundary (see `solubility.calc.surroundings.stability_limit`)."""
+    import xarray as xr
+
+    T = np.array([p.T for p in line.points])
+    solute = job.solute
+    data = {
+        "activity": ("T", activity, {"units": "1", "long_name": f"activity of {solute} at the host's limit"}),
+        "partner": ("T", np.array(["+".join(p.partners) for p in line.points], dtype=object),
+                    {"units": "", "long_name": "phase that forms above the limit"}),
+        "partner_change_T": ("change", np.array([c.T for c in line.changes], dtype=float),
+                             {"units": "K", "long_name": "temperature where the forming phase changes"}),
+    }
+    if np.isfinite(p_x2).any():
+        data["p_X2"] = ("T", p_x2, {"units": "Pa", "long_name": f"equivalent pressure of {solute}2 at the limit, Pa"})
+    if np.isfinite(k_n).any():
+        data["K_N"] = ("T", k_n, {"units": "atm-1/2", "long_name": "nitriding potential at the limit, atm^-1/2"})
+    attrs = {"title": f"limit of {job.phase} against {solute} potential", "database": job.database.name,
+             "database_sha256": job.database.sha256 or "", "phase": job.phase, "solute": solute,
+             **_versions(), "caution": CAUTION}
+    return xr.Dataset(data, coords={"T": ("T", T, {"units": "K", "long_name": "temperature"})}, attrs=attrs)
