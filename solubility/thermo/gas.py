@@ -256,7 +256,9 @@ class Atmosphere:
             species[-1].thermo = thermos[sp]
         gas = cantera.Solution(thermo="ideal-gas", species=species)
         total = sum(self.pressures.values())
-        gas.TPX = T, total, {_NASA_NAME.get(sp, sp): p for sp, p in self.pressures.items()}
+        # Cantera takes the file's standard state as 1 atm, but the data are at 1 bar (module docstring):
+        # scaling the total pressure by 1 atm / 1 bar makes its ln(p / p_ref) that of the data
+        gas.TPX = T, total * _ATM / P0, {_NASA_NAME.get(sp, sp): p for sp, p in self.pressures.items()}
         gas.equilibrate("TP")
         return {sp: float(x) * total for sp, x in zip(names, gas.X, strict=True)}
 
