@@ -141,10 +141,13 @@ def solute_potential(ldb, solute: str, surroundings: Surroundings, pressure: flo
         if ref_phase not in ldb.db.phases and surroundings.reference is None:
             raise InputError(f"the database's reference state of {solute} ({ref_phase or 'none'}) is not one of its "
                              "phases; name a reference phase")
-        ref_gibbs, ref_text, source = _phase_reference(ldb, ref_phase, solute, pressure), ref_phase, "database"
+        ref_gibbs, ref_text = _phase_reference(ldb, ref_phase, solute, pressure), ref_phase
+        source = f"database phase {ref_phase} (reference state)"
     if surroundings.reference is not None:
         (phase,) = check_phases(ldb, [surroundings.reference])
         ref_gibbs, ref_text = _phase_reference(ldb, phase, solute, pressure), phase
+        if surroundings.kind == "activity" and gas is None:
+            source = f"database phase {phase} (named reference)"
     if surroundings.kind == "atmosphere":
         source = "NASA polynomials (McBride, Gordon and Reno, NASA TM-4513, 1993) bundled with Cantera"
     pot = _Potential(surroundings, solute, ref_gibbs, ref_text, source)
