@@ -213,6 +213,8 @@ def build_limit_dataset(line, activity, p_x2, k_n, job):
         "activity": ("T", activity, {"units": "1", "long_name": f"activity of {solute} at the host's limit"}),
         "partner": ("T", np.array(["+".join(p.partners) for p in line.points], dtype=object),
                     {"units": "", "long_name": "phase that forms above the limit"}),
+        "status": ("T", np.array([p.status for p in line.points], dtype=object),
+                   {"units": "", "long_name": "status of the host's limit (host_unstable: not stable at any content)"}),
         "partner_change_T": ("change", np.array([c.T for c in line.changes], dtype=float),
                              {"units": "K", "long_name": "temperature where the forming phase changes"}),
     }

@@ -75,17 +75,23 @@ def plot_surface_map(limit, ax=None, *, quantity: str = "activity", temperature:
     ok = np.isfinite(q)
     ax.plot(T[ok], q[ok], "k-", lw=1.5)
     ax.set_yscale("log")
-    lo = np.nanmin(q[ok]) / 1e3 if ok.any() else 1e-3
-    hi = np.nanmax(q[ok]) * 1e3 if ok.any() else 1e3
+    lo = np.nanmin(q[ok]) / 1e2 if ok.any() else 1e-2
+    hi = np.nanmax(q[ok]) * 1e2 if ok.any() else 1e2
     ax.fill_between(T, lo, np.where(ok, q, np.nan), color="tab:blue", alpha=0.15)
     ax.fill_between(T, np.where(ok, q, np.nan), hi, color="tab:red", alpha=0.12)
     ax.set_ylim(lo, hi)
+    if "status" in limit:
+        unstable = limit["status"].values == "host_unstable"
+        if unstable.any():
+            ax.fill_between(T, lo, hi, where=unstable, color="0.6", alpha=0.35, step="mid")
+            ax.text(float(np.mean(T[unstable])), lo * 3, f"{limit.attrs.get('phase')}\nnot stable", fontsize=8,
+                    ha="center", color="0.2")
     host = limit.attrs.get("phase")
-    ax.text(0.03, 0.05, f"{host} stable", transform=ax.transAxes, fontsize=9, color="tab:blue")
+    ax.text(0.97, 0.05, f"{host} stable", transform=ax.transAxes, fontsize=9, color="tab:blue", ha="right")
     for name in dict.fromkeys(p for p in partner if p):
         idx = np.flatnonzero(partner == name)
         mid = idx[len(idx) // 2]
-        ax.text(T[mid], q[mid] * 30, f"{name.replace('+', ' + ')} forms", fontsize=8, color="tab:red", ha="center")
+        ax.text(T[mid], q[mid] * 8, f"{name.replace('+', ' + ')} forms", fontsize=8, color="tab:red", ha="center")
     for Tc in limit["partner_change_T"].values if "partner_change_T" in limit else ():
         if np.isfinite(Tc):
             ax.axvline(Tc - (273.15 if temperature == "C" else 0.0), color="0.5", ls=":", lw=1)
