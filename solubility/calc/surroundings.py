@@ -25,13 +25,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from solubility.calc.host import DF_TOL
 from solubility.errors import InputError
 from solubility.thermo.gas import P0, Atmosphere, R, atmosphere_potential, element_gas_reference
 
 __all__ = ["Surroundings", "UptakeLine", "UptakePoint", "compute_uptake", "solute_potential", "stability_limit"]
 
-#: a driving force above this (J per mole of atoms) means the phase forms instead (as the solvus engine)
-DF_TOL = 1e-4
 #: searched range of the solute's site fraction (as the solvus engine)
 Y_MIN, Y_MAX = 1e-30, 1.0 - 1e-9
 #: phases that are the surroundings rather than a product at the surface (never named in forms_instead)
@@ -112,11 +111,12 @@ class _Potential:
 
 def _phase_reference(ldb, phase: str, solute: str, pressure: float):
     """T -> Gibbs energy per mole of X of `phase` formed from the solute alone, at its optimum constitution."""
-    from solubility.thermo.system import filter_candidate_phases, get_system
+    from solubility.thermo.system import compiled_system, filter_candidate_phases
 
     if phase not in filter_candidate_phases(ldb.db, [solute]):
         raise InputError(f"reference phase {phase} cannot form from {solute} alone; give a phase of pure {solute}")
-    system = get_system(ldb.db, ldb.sha256 or f"memory:{id(ldb.db)}", [solute], [phase], pressure)
+    key = None if ldb.sha256 is None else f"sha256:{ldb.sha256}"
+    system = compiled_system(ldb.db, [solute], [phase], key=key).bind(pressure, {})
     zero = np.zeros(1)
 
     def gibbs(T: float) -> float:
@@ -157,30 +157,33 @@ def solute_potential(ldb, solute: str, surroundings: Surroundings, pressure: flo
     return pot
 
 
-# ---------------------------------------------------------------------- host access (two small seams)
+# ---------------------------------------------------------------------- host access (the core primitives)
 def _open_host(database, phase, solute, *, exclude, fix, pressure, balance):
-    """Validate the host request and build its compiled system (job with .system .host .candidates ...)."""
-    from solubility.calc.inputs import prepare
+    """Validate the host request and bind its compiled system (`solubility.calc.host.HostRequest`)."""
+    from solubility.calc.host import prepare_host
 
-    return prepare(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    return prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
 
 
 class _Host:
     """The host's potentials at ln y and every other candidate's driving force at given potentials."""
 
-    def __init__(self, job) -> None:
-        from solubility.calc.boundary import _Engine
-
-        others = [p for p in job.candidates if p == job.phase or p not in GAS_PHASES]
-        self._engine = _Engine(job.system, job.host, others)
-        self.skipped = tuple(p for p in job.candidates if p != job.phase and p in GAS_PHASES)
+    def __init__(self, req) -> None:
+        self._req = req
+        self.checked = tuple(p for p in req.others if p not in GAS_PHASES)
+        self.skipped = tuple(p for p in req.others if p in GAS_PHASES)
 
     def potentials(self, s: float, T: float) -> np.ndarray:
-        return self._engine.mu(s, T)
+        from solubility.calc.host import host_potentials
+
+        return host_potentials(self._req, s, T)[0]
 
     def forces(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None) -> dict:
-        """{phase: (driving force J/mol of atoms, y, converged)} of every candidate but the host."""
-        return self._engine.all_df(mu, T, hints)
+        """{phase: (driving force J/mol of atoms, y, converged)} of every candidate but the host (and the gas)."""
+        from solubility.calc.host import driving_forces
+
+        dfs = driving_forces(self._req, mu, T, hints=hints, phases=self.checked)
+        return {p: (d.value, d.y, d.converged) for p, d in dfs.items()}
 
 
 # ---------------------------------------------------------------------- the engine
@@ -340,7 +343,7 @@ def stability_limit(job, temperatures: Sequence[float]):
     from solubility.calc.boundary import solvus_line
     from solubility.thermo.gas import nasa_gibbs
 
-    line = solvus_line(job.system, job.host, job.candidates, temperatures)
+    line = solvus_line(job, temperatures)
     pot = solute_potential(job.database, job.solute, Surroundings("activity", 1.0), job.pressure)
     k = job.system.elements.index(job.solute)
     n = len(line.points)

@@ -31,14 +31,14 @@ from datetime import UTC, datetime
 
 import numpy as np
 
-from solubility.results.dataset import CAUTION, ZERO_CELSIUS, _composition, _versions
+from solubility.constants import ZERO_CELSIUS, R
+from solubility.results.dataset import CAUTION, _composition, _versions
 
 __all__ = ["build_limit_dataset", "build_uptake_dataset", "sieverts_fit", "uptake_csv_text", "uptake_json"]
 
 #: molar volume of an ideal gas at 273.15 K and 101325 Pa, cm3/mol (R T / p with R = 8.314462618)
 V_STP = 22413.97
 _ATM, _BAR = 101325.0, 1e5
-R = 8.3145
 
 
 def sieverts_fit(T, KS, T_range=None) -> tuple[float, float, int]:

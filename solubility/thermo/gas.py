@@ -25,6 +25,7 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
+from solubility.constants import R
 from solubility.errors import InputError
 
 __all__ = [
@@ -39,8 +40,6 @@ __all__ = [
 
 #: standard pressure of the gas data, Pa
 P0 = 1e5
-#: gas constant, J/(mol K): pycalphad's value (the constant of the databases' RT terms)
-R = 8.3145
 #: species an atmosphere may name (AR and HE are inert)
 GAS_SPECIES = ("H2", "N2", "O2", "NH3", "CO", "CO2", "CH4", "H2O", "AR", "HE")
 #: elements a diatomic gas X2 is the standard state of
