@@ -78,8 +78,9 @@ def _table(ds) -> str:
     if a.get("reaction"):
         lines.append(f"reaction {a['reaction']}")
     extra = "derived" if "derived" in ds else ("KS_CM3" if "KS_CM3" in ds else None)
-    head = {"derived": ds["derived"].attrs["long_name"].split(",")[0] if "derived" in ds else "",
-            "KS_CM3": "K_S cm3/100g/atm^0.5"}.get(extra, "")
+    name = ds["derived"].attrs["long_name"] if "derived" in ds else ""
+    short = "K_N/atm^-.5" if "K_N" in name else "a_C" if "carbon activity" in name else name.split(",")[0][:12]
+    head = {"derived": short, "KS_CM3": "K_S cm3/100g/atm^.5"}.get(extra, "")
     lines.append(f"{'T/K':>9} {'T/C':>8} {'x':>12} {'wt%':>11} {'ppm':>11} {'activity':>10}"
                  + (f" {head:>12}" if extra else "") + "  status / note")
     for i in range(ds.sizes["T"]):
