@@ -30,6 +30,7 @@ _EXPORTS = {
     "audit_database": "databases.audit",
     "bundled_databases": "databases.bundled",
     "solvus": "api",
+    "uptake": "api",
     "sweep": "sweeps",
     "read_job": "sweeps",
     "Case": "sweeps",

@@ -12,7 +12,7 @@ from collections.abc import Mapping, Sequence
 from solubility.calc.inputs import MAX_TEMPERATURES
 from solubility.errors import InputError
 
-__all__ = ["fit", "solvus"]
+__all__ = ["fit", "solvus", "uptake"]
 
 
 def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
@@ -113,3 +113,71 @@ def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[st
     result = fit_solvus(req, dat, values, {str(k).upper(): v for k, v in (bounds or {}).items()})
     result.extra.update({"database": ldb.name, "phase": req.phase, "solute": req.solute, "free": str(free)})
     return result
+
+
+def uptake(database, phase: str, solute: str, temperatures, *, activity: float | None = None,
+           reference: str | None = None, partial_pressure: float | None = None, atmosphere=None,
+           equilibrate_gas: bool = False, exclude: Sequence[str] = (), fix: Mapping[str, float] | None = None,
+           pressure: float = 101325.0, balance: str | None = None, celsius: bool = False,
+           sieverts_range: tuple[float, float] | None = None):
+    """Solute content of the host `phase` in equilibrium with its surroundings, against temperature.
+
+    Give exactly one of `activity`, `partial_pressure` or `atmosphere`.
+
+    Parameters
+    ----------
+    database
+        Path to a TDB file, the name of a bundled database, or a pycalphad Database.
+    phase
+        Host phase, a (hosts)a(X,VA)c solution such as FCC_A1.
+    solute
+        Interstitial element, such as "N".
+    temperatures
+        K (Celsius with ``celsius=True``): a sequence, or "START:STOP:STEP" with STOP included.
+    activity
+        The solute's activity (> 0) against `reference`.
+    reference
+        A phase of the database formed from the solute alone (e.g. GRAPHITE). Default: the element's reference
+        state (the database's graphite for C; 1/2 X2 gas at 1 bar for H, N and O).
+    partial_pressure
+        Pa, of the pure diatomic gas X2 (H2, N2, O2): mu_X = 1/2 G(X2, T, 1 bar) + 1/2 R T ln(p / 1 bar).
+    atmosphere
+        Partial pressures of a gas mixture, Pa, as "NH3=0.3e5,H2=0.7e5" or a mapping. The solute's potential
+        follows from NH3 = N + 3/2 H2 (the nitriding potential K_N = p(NH3) / p(H2)^1.5, atm^-1/2),
+        2 CO = C + CO2 or CH4 = C + 2 H2 (carbon activity), H2O = O + H2 or CO2 = O + CO.
+    equilibrate_gas
+        Bring the atmosphere to gas-phase equilibrium first (default: taken as given, the trade's convention for
+        nitriding and carburising gases, which are far from gas equilibrium).
+    exclude, fix, pressure, balance
+        As for `solubility.solvus`: phases not allowed, u-fractions of other host elements, total pressure (Pa)
+        on the host, the host's balance element.
+    sieverts_range
+        (T_min, T_max), K, over which the apparent enthalpy of solution is fitted (partial pressure only).
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``T``: X, W, PPM, Y, activity, MU_SOLUTE, status (ok / metastable / below_limit / failed), reason,
+        forms_instead, DF_MAX, MU; Sieverts constants KS_X, KS_CM3, KS_PPM for a partial pressure; ``derived``
+        (nitriding potential, carbon activity, ...) for an atmosphere. Attrs name the gas data's source.
+    """
+    from solubility.calc.inputs import parse_temperatures
+    from solubility.calc.surroundings import Surroundings, _open_host, compute_uptake, solute_potential
+    from solubility.errors import InputError
+    from solubility.results.uptake_dataset import build_uptake_dataset
+
+    sur = Surroundings.check(activity=activity, reference=reference, partial_pressure=partial_pressure,
+                             atmosphere=atmosphere, equilibrate_gas=equilibrate_gas)
+    T = parse_temperatures(temperatures, celsius=celsius)
+    if sieverts_range is not None:
+        try:
+            lo, hi = (float(v) for v in sieverts_range)
+        except (TypeError, ValueError):
+            raise InputError(f"sieverts_range {sieverts_range!r} is not (T_min, T_max) in K") from None
+        if not 0 < lo < hi:
+            raise InputError(f"sieverts_range {sieverts_range!r} must satisfy 0 < T_min < T_max (K)")
+        sieverts_range = (lo, hi)
+    job = _open_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    potential = solute_potential(job.database, job.solute, sur, job.pressure)
+    line = compute_uptake(job, potential, T)
+    return build_uptake_dataset(line, job, sur, sieverts_range=sieverts_range)

@@ -17,7 +17,7 @@ from solubility import __version__
 from solubility.errors import SolubilityError
 
 #: subcommands in the order ``--help`` lists them
-COMMANDS = ("sites", "model", "databases", "audit", "solvus", "sweep", "fit")
+COMMANDS = ("sites", "model", "databases", "audit", "solvus", "uptake", "fit", "sweep")
 
 EXIT_OK = 0
 EXIT_USAGE = 2

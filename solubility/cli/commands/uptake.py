@@ -1,0 +1,136 @@
+"""Solute content of a host phase in equilibrium with its surroundings (an activity, a gas, an atmosphere).
+
+Give exactly one of --activity (against --reference, by default the element's reference state: graphite for C,
+1/2 N2, 1/2 H2, 1/2 O2 gas at 1 bar), --partial-pressure (Pa of the pure diatomic gas H2, N2 or O2; Sieverts'
+law) or --atmosphere (partial pressures of a gas mixture, Pa: NH3 and H2 for nitriding, with the nitriding
+potential K_N = p(NH3) / p(H2)^1.5 in atm^-1/2; CO and CO2, or CH4 and H2, for carburising; H2O and H2 for
+oxygen). The mixture is taken as given unless --equilibrate-gas. Every other phase is checked at the host's
+potentials: "metastable" names what forms instead (the host still gets its number).
+
+Results are only as good as the database: verify them against measurements; applicable codes and qualified
+engineering practice take precedence.
+
+examples:
+  solubility uptake fe-c --phase FCC_A1 --solute C --temperatures 1100:1300:50 --activity 0.5
+  solubility uptake steel --phase BCC_A2 --solute N --temperatures 773:873:25 --atmosphere NH3=0.3e5,H2=0.7e5
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from solubility.cli.commands._common import emit_json
+from solubility.cli.commands.solvus import _fix_item, _fix_map, _outputs
+from solubility.errors import InputError
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("database", metavar="DATABASE", help="TDB file or bundled name (see 'solubility databases')")
+    parser.add_argument("--phase", required=True, help="host phase, e.g. FCC_A1")
+    parser.add_argument("--solute", required=True, help="interstitial solute element, e.g. N")
+    parser.add_argument("--temperatures", required=True, metavar="START:STOP:STEP",
+                        help="START:STOP:STEP (STOP included) or a comma-separated list, K (C with --celsius)")
+    parser.add_argument("--celsius", action="store_true", help="temperatures are given in degrees Celsius")
+    what = parser.add_mutually_exclusive_group(required=True)
+    what.add_argument("--activity", metavar="A", help="activity of the solute against --reference (> 0)")
+    what.add_argument("--partial-pressure", metavar="PA", help="partial pressure of the diatomic gas X2, Pa")
+    what.add_argument("--atmosphere", metavar="SPEC", help="gas mixture SPECIES=PA,..., e.g. NH3=0.3e5,H2=0.7e5")
+    parser.add_argument("--reference", metavar="PHASE",
+                        help="reference phase of --activity (default: the element's reference state)")
+    parser.add_argument("--equilibrate-gas", action="store_true",
+                        help="bring the --atmosphere to gas equilibrium first (default: taken as given)")
+    parser.add_argument("--sieverts-range", metavar="TMIN:TMAX",
+                        help="temperatures (K) of the Sieverts enthalpy fit (default: all ok points)")
+    parser.add_argument("--exclude", nargs="+", action="extend", default=[], metavar="PHASE",
+                        help="phases that may not appear (repeatable)")
+    parser.add_argument("--fix", action="append", default=[], type=_fix_item, metavar="EL=U",
+                        help="u-fraction of another host element, e.g. CR=0.02 (repeatable)")
+    parser.add_argument("--balance", metavar="EL", help="balance element of the host (when not evident)")
+    parser.add_argument("--pressure", default="101325", metavar="PA", help="total pressure on the host, Pa")
+    parser.add_argument("--csv", metavar="FILE", help="write the table as CSV")
+    parser.add_argument("--netcdf", metavar="FILE", help="write the Dataset as NetCDF")
+    parser.add_argument("--plot", metavar="FILE", help="write a figure of content against temperature")
+    parser.add_argument("--plot-units", default="wt%", choices=["wt%", "at%", "ppm", "x"],
+                        help="composition unit of the figure (default wt%%)")
+    parser.add_argument("--plot-temperature", default="C", choices=["C", "K"],
+                        help="temperature unit of the figure (default C)")
+    parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
+
+
+def _range(text: str | None):
+    if text is None:
+        return None
+    parts = text.split(":")
+    try:
+        lo, hi = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"--sieverts-range {text!r} is not TMIN:TMAX in K") from None
+    return lo, hi
+
+
+def _table(ds) -> str:
+    a = ds.attrs
+    lines = [f"uptake of {a['solute']} by {a['phase']} from {a['surroundings_value']}  (database {a['database']}, "
+             f"sha256 {a['database_sha256'][:12]}...)",
+             f"activity against {a['reference']}; gas data: {a['gas_data_source']}"]
+    if a.get("reaction"):
+        lines.append(f"reaction {a['reaction']}")
+    extra = "derived" if "derived" in ds else ("KS_CM3" if "KS_CM3" in ds else None)
+    name = ds["derived"].attrs["long_name"] if "derived" in ds else ""
+    short = "K_N/atm^-.5" if "K_N" in name else "a_C" if "carbon activity" in name else name.split(",")[0][:12]
+    head = {"derived": short, "KS_CM3": "K_S cm3/100g/atm^.5"}.get(extra, "")
+    lines.append(f"{'T/K':>9} {'T/C':>8} {'x':>12} {'wt%':>11} {'ppm':>11} {'activity':>10}"
+                 + (f" {head:>12}" if extra else "") + "  status / note")
+    for i in range(ds.sizes["T"]):
+        T, st = float(ds["T"].values[i]), str(ds["status"].values[i])
+        tail = f" {ds[extra].values[i]:12.4g}" if extra else ""
+        if st in ("ok", "metastable"):
+            note = "ok" if st == "ok" else f"[metastable] {ds['forms_instead'].values[i].replace('+', ', ')} forms"
+            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {ds['X'].values[i]:12.5e} {100 * ds['W'].values[i]:11.5e} "
+                         f"{ds['PPM'].values[i]:11.4g} {ds['activity'].values[i]:10.4g}{tail}  {note}")
+        else:
+            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {'-':>12} {'-':>11} {'-':>11} "
+                         f"{ds['activity'].values[i]:10.4g}{tail}  [{st}] {ds['reason'].values[i]}")
+    if "sieverts_enthalpy_J_per_mol" in a:
+        lines.append(f"apparent enthalpy of solution (1/2 {a['solute']}2 -> {a['solute']}): "
+                     f"{a['sieverts_enthalpy_J_per_mol'] / 1000:.2f} kJ/mol over {a['sieverts_fit_range_K']} "
+                     f"({a['sieverts_fit_points']} points)")
+    lines.append("Results are only as good as the database; verify against measurements. Applicable codes and "
+                 "qualified engineering practice take precedence.")
+    return "\n".join(lines)
+
+
+def run(args: argparse.Namespace) -> int:
+    from solubility import uptake
+    from solubility._io import atomic_write_text
+    from solubility.results.dataset import write_netcdf
+    from solubility.results.uptake_dataset import uptake_csv_text, uptake_json
+
+    try:
+        pressure = float(args.pressure)
+    except ValueError:
+        raise InputError(f"--pressure {args.pressure!r} is not a number of Pa") from None
+    outs = _outputs(args)
+    ds = uptake(args.database, args.phase, args.solute, args.temperatures, activity=args.activity,
+                reference=args.reference, partial_pressure=args.partial_pressure, atmosphere=args.atmosphere,
+                equilibrate_gas=args.equilibrate_gas, exclude=args.exclude, fix=_fix_map(args.fix),
+                pressure=pressure, balance=args.balance, celsius=args.celsius,
+                sieverts_range=_range(args.sieverts_range))
+    for kind, path in outs:
+        if kind == "csv":
+            atomic_write_text(path, uptake_csv_text(ds))
+        elif kind == "netcdf":
+            write_netcdf(ds, path)
+        else:
+            from solubility.results.uptake_plots import save_uptake_figure
+
+            save_uptake_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature)
+    if args.json:
+        emit_json(uptake_json(ds))
+    else:
+        print(_table(ds))
+        for kind, path in outs:
+            print(f"wrote {kind}: {path}", file=sys.stderr)
+    return 0
