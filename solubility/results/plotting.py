@@ -22,7 +22,7 @@ from solubility.errors import InputError
 from solubility.results._layout import free_boxes, place_text, pyplot, readable_ticks
 from solubility.results.summary import R, arrhenius_fit, extreme, segments
 
-__all__ = ["apparent_enthalpy", "plot_arrhenius", "plot_solvus", "save_solvus_figure"]
+__all__ = ["apparent_enthalpy", "plot_arrhenius", "plot_solvus", "save_solvus_figure", "solvus_figure"]
 
 UNITS = {"wt%": ("W", 100.0, "wt%"), "at%": ("X", 100.0, "at%"), "ppm": ("PPM", 1.0, "ppm by mass"),
          "x": ("X", 1.0, "mole fraction")}
@@ -206,6 +206,11 @@ def plot_solvus(ds, ax=None, *, units: str = "wt%", temperature: str = "C", log:
     solute, host = ds.attrs.get("solute", "solute"), display(ds.attrs.get("phase", "host"), labels)
     if log:
         ax.set_xscale("log")
+        values = np.concatenate([xs for _, xs, _ in drawn]) if drawn else np.array([])
+        values = values[np.isfinite(values) & (values > 0)]
+        if values.size and values.max() / values.min() < 2.0:  # too narrow for readable log ticks
+            centre = math.sqrt(values.max() * values.min())
+            ax.set_xlim(centre / 1.5, centre * 1.5)
     elif drawn:
         ax.set_xlim(left=0.0, right=max(float(np.nanmax(xs)) for _, xs, _ in drawn) * 1.08)
     ax.set_xlabel(f"{solute} in {host}, {unit_label}")
@@ -281,22 +286,13 @@ def plot_arrhenius(ds, ax=None, *, T_range: tuple[float, float] | None = None,
     return ax
 
 
-def save_solvus_figure(ds, path: str | Path, *, units: str = "wt%", temperature: str = "C",
-                       T_range: tuple[float, float] | None = None,
-                       labels: Mapping[str, str] | None = None) -> Path:
-    """A report figure: linear and log solvus and the Arrhenius view, with provenance; written atomically.
-
-    The format follows the file name's suffix (png, pdf, svg). A line without a single ``ok`` point has nothing
-    to draw: `InputError` is raised and no file is written. With one point the Arrhenius panel is left out.
-    """
-    from solubility._io import atomic_write
+def solvus_figure(ds, *, units: str = "wt%", temperature: str = "C", T_range: tuple[float, float] | None = None,
+                  labels: Mapping[str, str] | None = None):
+    """The report figure (see `save_solvus_figure`) as a matplotlib Figure; the caller closes it."""
     from solubility.results.dataset import CAUTION
 
     plt = pyplot()
     _check(units, temperature)
-    suffix = Path(path).suffix.lower().lstrip(".")
-    if suffix not in ("png", "pdf", "svg"):
-        raise InputError(f"figure file {str(path)!r} must end in .png, .pdf or .svg")
     n_ok = int(np.sum(ds["status"].values == "ok"))
     if n_ok == 0:
         states = ", ".join(sorted({str(s) for s in ds["status"].values}))
@@ -305,11 +301,11 @@ def save_solvus_figure(ds, path: str | Path, *, units: str = "wt%", temperature:
         arrhenius_fit(ds, T_range)  # a bad range is refused before anything is drawn
     panels = 3 if n_ok >= 2 else 2
     fig = plt.figure(figsize=(5.2 * panels, 5.9), layout="constrained")
-    grid = fig.add_gridspec(2, panels, height_ratios=[1.0, 0.2])
-    axes = [fig.add_subplot(grid[0, k]) for k in range(panels)]
-    foot = fig.add_subplot(grid[1, :])
-    foot.set_axis_off()
     try:
+        grid = fig.add_gridspec(2, panels, height_ratios=[1.0, 0.2])
+        axes = [fig.add_subplot(grid[0, k]) for k in range(panels)]
+        foot = fig.add_subplot(grid[1, :])
+        foot.set_axis_off()
         # figure-level texts first, so the layout is final before labels are placed inside the panels
         from matplotlib.lines import Line2D
 
@@ -334,6 +330,27 @@ def save_solvus_figure(ds, path: str | Path, *, units: str = "wt%", temperature:
                     annotate=False, title="logarithmic composition axis")
         if panels == 3:
             plot_arrhenius(ds, axes[2], T_range=T_range, labels=labels, legend=False)
+    except BaseException:
+        plt.close(fig)
+        raise
+    return fig
+
+
+def save_solvus_figure(ds, path: str | Path, *, units: str = "wt%", temperature: str = "C",
+                       T_range: tuple[float, float] | None = None,
+                       labels: Mapping[str, str] | None = None) -> Path:
+    """A report figure: linear and log solvus and the Arrhenius view, with provenance; written atomically.
+
+    The format follows the file name's suffix (png, pdf, svg). A line without a single ``ok`` point has nothing
+    to draw: `InputError` is raised and no file is written. With one point the Arrhenius panel is left out.
+    """
+    from solubility._io import atomic_write
+
+    suffix = Path(path).suffix.lower().lstrip(".")
+    if suffix not in ("png", "pdf", "svg"):
+        raise InputError(f"figure file {str(path)!r} must end in .png, .pdf or .svg")
+    fig = solvus_figure(ds, units=units, temperature=temperature, T_range=T_range, labels=labels)
+    try:
         return atomic_write(path, lambda tmp: fig.savefig(tmp, format=suffix, dpi=150, bbox_inches="tight"))
     finally:
-        plt.close(fig)
+        pyplot().close(fig)
