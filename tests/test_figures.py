@@ -61,9 +61,10 @@ def austenite():
 
 def _tiny_beside_large():
     T = np.arange(500.0, 800.0, 10.0)
-    X = np.where(T < 600, 4.6e-7 * np.exp((T - 500) / 60), 1e-4 * np.exp((T - 600) / 50))  # invented
+    # invented: continuous at the change (595 K), rising from about 1e-5 wt% to about 1e-2 wt%
+    X = np.where(T < 600, 4.6e-7 * np.exp((T - 500) / 60), 2.23e-6 * np.exp((T - 595) / 36))
     partners = np.where(T < 600, "LOW", "HIGH")
-    return invented(T, X, partners, [(595.0, 7.5e-7, "LOW", "HIGH")])
+    return invented(T, X, partners, [(595.0, 4.6e-7 * np.exp(95 / 60), "LOW", "HIGH")])
 
 
 AWKWARD = {
@@ -153,7 +154,7 @@ def test_tiny_segment_gets_an_inset():
     try:
         fig.canvas.draw()
         (inset,) = fig.axes[0].child_axes
-        lo, hi = inset.get_xlim()
+        _, hi = inset.get_xlim()
         assert hi < 0.001  # wt%: the inset shows the 1e-5 wt% segment, not the 1e-2 wt% one
     finally:
         plt.close(fig)

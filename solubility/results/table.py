@@ -17,8 +17,9 @@ ZERO_CELSIUS = 273.15
 
 
 def _plain(v: float, digits: int) -> str:
-    text = np.format_float_positional(v, precision=digits, unique=False, fractional=False, trim="k")
-    return text.rstrip(".")
+    v = float(f"{v:.{digits - 1}e}")  # rounded to `digits` significant digits, trailing zeros kept below
+    decimals = max(0, digits - 1 - math.floor(math.log10(abs(v))))
+    return f"{v:.{decimals}f}"
 
 
 def column(values, digits: int = DIGITS) -> list[str]:
