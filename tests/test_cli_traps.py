@@ -100,8 +100,9 @@ def test_ascii_console_gets_ascii():
 
 
 def test_unwritable_home_and_folder_do_not_break_the_figure(tmp_path):
+    # HOME is a regular file: no config folder can be made under it, even by root (who ignores the modes)
     home = tmp_path / "home"
-    home.mkdir()
+    home.write_text("not a folder\n")
     work = tmp_path / "work"
     work.mkdir()
     out = tmp_path / "out"

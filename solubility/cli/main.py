@@ -142,6 +142,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return EXIT_USAGE
     try:
+        from solubility.results._mplconfig import ensure_config_dir
+
+        ensure_config_dir()  # before pycalphad imports matplotlib
         status = int(args._run(args) or 0)
         sys.stdout.flush()  # a full device fails here, not in the interpreter's exit
         return status

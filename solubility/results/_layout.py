@@ -7,22 +7,10 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
-from pathlib import Path
 
 import numpy as np
 
 __all__ = ["free_boxes", "place_text", "pyplot", "readable_ticks"]
-
-
-def _config_dir_writable() -> bool:
-    """Whether matplotlib's default config/cache folder can be created and written."""
-    if os.environ.get("MPLCONFIGDIR"):
-        return True
-    base = os.environ.get("XDG_CONFIG_HOME") or os.path.join(os.path.expanduser("~"), ".config")
-    folder = Path(base) / "matplotlib"
-    probe = folder if folder.exists() else next((p for p in folder.parents if p.exists()), None)
-    return probe is not None and probe.is_dir() and os.access(probe, os.W_OK | os.X_OK)
 
 
 def pyplot():
@@ -33,8 +21,10 @@ def pyplot():
     """
     import sys
 
-    if "matplotlib" not in sys.modules and not _config_dir_writable():
-        os.environ["MPLCONFIGDIR"] = tempfile.mkdtemp(prefix="solubility-matplotlib-")
+    from solubility.results._mplconfig import ensure_config_dir
+
+    if "matplotlib" not in sys.modules:
+        ensure_config_dir()
     import matplotlib
 
     if "matplotlib.pyplot" not in sys.modules and not os.environ.get("MPLBACKEND"):
