@@ -147,7 +147,7 @@ def main(argv=None) -> int:
             cli = [str(exe) if exe.exists() else sys.executable,
                    *([] if exe.exists() else ["-m", "solubility.cli.main"]),
                    "solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures", "500:990:1",
-                   "--exclude", *EXCLUDE, "--json"]
+                   "--exclude", ",".join(EXCLUDE), "--json"]
             cold_ref = _cold([sys.executable, str(ref_script)], args.rounds)
             cold_cli = _cold(cli, args.rounds)
         print(f"D  cold CLI, 491 temperatures: {cold_cli:.2f} s; cold pycalphad import + load + one equilibrium: "

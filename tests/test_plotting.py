@@ -33,7 +33,7 @@ def test_one_labelled_segment_per_partner(line):
 
 def test_arrhenius_view_states_the_fit(line):
     ax = plot_arrhenius(line)
-    assert any("kJ/mol" in t for t in ax.get_legend_handles_labels()[1])
+    assert any("kJ/mol" in t.get_text() and "pre-factor" in t.get_text() for t in ax.texts)
     plt.close(ax.figure)
 
 

@@ -95,7 +95,7 @@ def test_cli_json_contract(capsys):
 
 def test_cli_writes_outputs_atomically_and_refuses_to_overwrite(tmp_path, capsys):
     args = ["solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures", "800:1000:100",
-            "--exclude", "GRAPHITE", "DIAMOND_A4", "--csv", str(tmp_path / "a.csv"),
+            "--exclude", "GRAPHITE,DIAMOND_A4", "--csv", str(tmp_path / "a.csv"),
             "--netcdf", str(tmp_path / "a.nc"), "--plot", str(tmp_path / "a.png")]
     assert main(args) == 0
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a.csv", "a.nc", "a.png"]
@@ -111,7 +111,7 @@ def test_installed_command_runs(tmp_path):
     script = Path(sys.executable).parent / "solubility"  # the console script pip installed beside python
     exe = [str(script)] if script.exists() else [sys.executable, "-m", "solubility.cli.main"]
     res = subprocess.run([*exe, "solvus", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--temperatures",
-                          "800", "--exclude", "GRAPHITE", "DIAMOND_A4", "--json"],
+                          "800", "--exclude", "GRAPHITE,DIAMOND_A4", "--json"],
                          capture_output=True, text=True, timeout=600, check=False)
     assert res.returncode == 0, res.stderr
     assert json.loads(res.stdout)["partner_phases"] == [["CEMENTITE_D011"]]

@@ -4,12 +4,25 @@ Each subcommand is a small module in `solubility.commands` with a help docstring
 ``run(args) -> int``. Modules import their heavy dependencies inside ``run``, so ``--help`` stays instant and the
 geometry commands never import pycalphad. Any `SolubilityError` becomes one line on standard error and exit
 status 2 (``--traceback`` shows the full traceback instead).
+
+Exit statuses: 0 done; 2 bad input (one line on standard error); 3 the command ran but its result holds no
+number (``solvus``: no point of the line has one; nothing is drawn); 4 an output could not be written (standard
+output or a file on a full or failing device); 130 interrupted.
+
+A value that starts with a minus sign is taken as the value of the option before it (``--temperatures
+-10:100:10``), and a console that cannot show a character (an ASCII terminal and the Å of ``sites``) gets an
+ASCII spelling instead of an encoding error.
 """
 
 from __future__ import annotations
 
 import argparse
+import codecs
+import contextlib
+import errno
 import importlib
+import os
+import re
 import sys
 from collections.abc import Sequence
 
@@ -21,6 +34,33 @@ COMMANDS = ("sites", "model", "databases", "audit", "solvus", "uptake", "fit", "
 
 EXIT_OK = 0
 EXIT_USAGE = 2
+EXIT_EMPTY = 3
+EXIT_OUTPUT = 4
+EXIT_INTERRUPTED = 130
+#: errno values of a device that cannot take more output
+_WRITE_ERRORS = {errno.ENOSPC, errno.EIO, errno.EFBIG, getattr(errno, "EDQUOT", errno.ENOSPC)}
+
+#: ASCII spellings of the non-ASCII characters the commands print
+_ASCII = {"Å": "A", "°": "deg", "→": "->", "²": "^2", "³": "^3", "×": "x", "−": "-", "≤": "<=", "≥": ">=",
+          "ε": "eps", "μ": "mu", "±": "+-"}
+_NEGATIVE = re.compile(r"^-\.?\d")
+
+
+def _ascii_spelling(exc: UnicodeEncodeError) -> tuple[str, int]:
+    text = exc.object[exc.start:exc.end]
+    return "".join(_ASCII.get(ch, "?") for ch in text), exc.end
+
+
+codecs.register_error("solubility_ascii", _ascii_spelling)
+
+
+def _plain_streams() -> None:
+    """Streams whose encoding cannot show every character write an ASCII spelling instead of failing."""
+    for stream in (sys.stdout, sys.stderr):
+        encoding = (getattr(stream, "encoding", None) or "").lower().replace("-", "")
+        if encoding and not encoding.startswith(("utf", "cp65001")) and hasattr(stream, "reconfigure"):
+            with contextlib.suppress(ValueError, OSError):  # a detached or closed stream stays as it is
+                stream.reconfigure(errors="solubility_ascii")
 
 
 class _UsageError(Exception):
@@ -31,7 +71,34 @@ class _Parser(argparse.ArgumentParser):
     """An ArgumentParser whose errors are one line and never call `sys.exit` from deep inside."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        raise _UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")
+        hint = f"see '{self.prog} --help'"
+        if "expected one argument" in message:
+            option = message.split(":")[0].replace("argument", "").strip().split("/")[0]
+            hint = f"give the value after '=' if it starts with '-', e.g. {option}=-10:100:10; " + hint
+        elif message.startswith("unrecognized arguments"):
+            hint = "an option takes one value: --exclude A,B or --exclude A --exclude B; " + hint
+        raise _UsageError(f"{self.prog}: {message} ({hint})")
+
+
+def _join_negative_values(parser: argparse.ArgumentParser, args: list[str]) -> list[str]:
+    """``--opt -10:100:10`` -> ``--opt=-10:100:10`` for options that take one value (argparse would read the
+    value as an option)."""
+    takes_value = set()
+    for action in parser._actions:  # the subcommands' options too
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                takes_value |= {o for a in sub._actions if a.nargs is None and a.option_strings
+                                for o in a.option_strings}
+    out: list[str] = []
+    i = 0
+    while i < len(args):
+        if args[i] in takes_value and i + 1 < len(args) and _NEGATIVE.match(args[i + 1]):
+            out.append(f"{args[i]}={args[i + 1]}")
+            i += 2
+        else:
+            out.append(args[i])
+            i += 1
+    return out
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -61,10 +128,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line with `argv` (default: ``sys.argv[1:]``) and return the exit status."""
+    _plain_streams()
     args_list = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     try:
-        args = parser.parse_args(args_list)
+        args = parser.parse_args(_join_negative_values(parser, args_list))
     except _UsageError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -74,7 +142,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return EXIT_USAGE
     try:
-        return int(args._run(args) or 0)
+        from solubility.results._mplconfig import ensure_config_dir
+
+        ensure_config_dir()  # before pycalphad imports matplotlib
+        status = int(args._run(args) or 0)
+        sys.stdout.flush()  # a full device fails here, not in the interpreter's exit
+        return status
     except SolubilityError as exc:
         if getattr(args, "traceback", False):
             raise
@@ -82,9 +155,31 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     except KeyboardInterrupt:
         print("error: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     except BrokenPipeError:
+        _silence_stdout()
         return EXIT_OK
+    except OSError as exc:
+        if getattr(args, "traceback", False) or not _is_stdout_error(exc):
+            raise
+        _silence_stdout()
+        print(f"error: cannot write to standard output: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_OUTPUT
+
+
+def _is_stdout_error(exc: OSError) -> bool:
+    """An error of writing standard output (it has no file name; errors of output files name theirs)."""
+    return exc.filename is None and exc.errno in _WRITE_ERRORS
+
+
+def _silence_stdout() -> None:
+    """Point standard output at the null device so the interpreter's final flush cannot fail again."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):  # pragma: no cover - stdout is not a file descriptor (tests)
+        pass
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -57,10 +57,15 @@ from solubility.geometry.critical import Block, Site, candidate_points, critical
 from solubility.geometry.limits import check_length
 from solubility.geometry.structure import Structure, is_positive_number
 
-__all__ = ["SIZE_RULE_LIMIT", "Misfit", "SiteFamily", "find_sites", "misfit"]
+__all__ = ["LINEAR_MISFIT_LIMIT", "SIZE_RULE_LIMIT", "Misfit", "SiteFamily", "find_sites", "misfit"]
 
 #: solute/host radius ratio below which interstitial solution is expected (common practice, no source)
 SIZE_RULE_LIMIT = 0.59
+#: |misfit strain| up to which the linear-elastic (Eshelby) energy is a fair estimate. The matrix strain at the
+#: hole's surface is about eps; interatomic forces depart from Hooke's law well before a strain of 0.1, where
+#: the stress reaches the order of the ideal strength of a crystal (about G/10, Frenkel's estimate; common
+#: practice, no source). Beyond it the energy is indicative only and may misorder sites.
+LINEAR_MISFIT_LIMIT = 0.1
 
 
 @dataclass(frozen=True, eq=False)
@@ -232,6 +237,9 @@ class Misfit:
     energy_compressible_J
         Estimate for a compressible solute of bulk modulus K, 8 pi mu r^3 eps^2 * 3K / (3K + 4 mu), J per
         solute atom (None without both moduli).
+    within_linear_range
+        abs(eps) <= `LINEAR_MISFIT_LIMIT` (0.1): the linear-elastic energy is a fair estimate; outside it the
+        energies are indicative only.
     """
 
     eps: float
@@ -239,6 +247,7 @@ class Misfit:
     fits_size_rule: bool | None
     energy_rigid_J: float | None  # noqa: N815 (the unit suffix is part of the public name)
     energy_compressible_J: float | None  # noqa: N815
+    within_linear_range: bool = True
 
     def to_dict(self) -> dict[str, float | bool | None]:
         return {
@@ -247,6 +256,8 @@ class Misfit:
             "fits_size_rule": self.fits_size_rule,
             "energy_rigid_J": self.energy_rigid_J,
             "energy_compressible_J": self.energy_compressible_J,
+            "within_linear_range": self.within_linear_range,
+            "linear_misfit_limit": LINEAR_MISFIT_LIMIT,
         }
 
 
@@ -322,4 +333,4 @@ def misfit(
     compressible = None
     if rigid is not None and K is not None and mu is not None:
         compressible = rigid * 3.0 * K / (3.0 * K + 4.0 * mu)
-    return Misfit(eps, size_ratio, fits, rigid, compressible)
+    return Misfit(eps, size_ratio, fits, rigid, compressible, abs(eps) <= LINEAR_MISFIT_LIMIT)

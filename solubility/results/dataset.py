@@ -17,6 +17,10 @@ MU          J/mol    chemical potentials of the elements at the boundary
 DF_OTHER    J/mol    largest driving force of any other candidate phase (<= 0 on a checked boundary)
 ========== ======== =====================================================================
 
+Along ``change``: ``partner_change_T`` (K), ``partner_change_X``, ``partner_change_W``, ``partner_change_PPM``,
+``partner_below``, ``partner_above``. 0-d: the most solute on the line (``extreme_*``) and the Arrhenius fit
+(``fit_*``), see `solubility.results.summary`.
+
 Attrs are flat and NetCDF-safe: database name and sha256, host phase, solute, site ratios, fixed contents (JSON),
 excluded phases, pressure, package versions and creation time.
 """
@@ -116,6 +120,8 @@ def build_dataset(line, job):
                              {"units": "1", "long_name": f"mole fraction of {solute} in {host} at the change"}),
         "partner_change_W": ("change", change_xw[:, 1],
                              {"units": "1", "long_name": f"mass fraction of {solute} in {host} at the change"}),
+        "partner_change_PPM": ("change", change_xw[:, 1] * 1e6,
+                               {"units": "ppm", "long_name": f"{solute} in {host} at the change, ppm by mass"}),
         "partner_below": ("change", np.array(["+".join(c.below) for c in line.changes], dtype=object),
                           {"units": "", "long_name": "partner below the change"}),
         "partner_above": ("change", np.array(["+".join(c.above) for c in line.changes], dtype=object),
@@ -123,7 +129,8 @@ def build_dataset(line, job):
     }
     coords = {
         "T": ("T", T, {"units": "K", "long_name": "temperature"}),
-        "T_C": ("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}),
+        # rounded to 1e-9 K (far below the 0.01 K of a located change) so 500 K reads 226.85, not 226.85000000000002
+        "T_C": ("T", np.round(T - ZERO_CELSIUS, 9), {"units": "degC", "long_name": "temperature"}),
         "component": ("component", list(line.elements), {"units": "", "long_name": "element"}),
     }
     ldb = job.database
@@ -143,7 +150,9 @@ def build_dataset(line, job):
         "created": datetime.now(UTC).isoformat(timespec="seconds"),
         "caution": CAUTION,
     }
-    return xr.Dataset(data, coords=coords, attrs=attrs)
+    from solubility.results.summary import add_summary
+
+    return add_summary(xr.Dataset(data, coords=coords, attrs=attrs))
 
 
 # ---------------------------------------------------------------------- exports
@@ -156,9 +165,56 @@ def _finite(v) -> float | None:
     return v if math.isfinite(v) else None
 
 
+def _scalar(ds, name: str):
+    if name not in ds:
+        return None
+    value = ds[name].values.item()
+    if isinstance(value, float):
+        return _finite(value)
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def _summary(ds) -> tuple[dict | None, dict | None]:
+    """The ``extreme`` and ``fit`` objects of the JSON (None when the line has none)."""
+    if "extreme_T" not in ds:
+        from solubility.results.summary import add_summary
+
+        ds = add_summary(ds)
+    ext = None
+    if _scalar(ds, "extreme_X") is not None:
+        w = _scalar(ds, "extreme_W")
+        ext = {"temperature_K": _scalar(ds, "extreme_T"), "mole_fraction": _scalar(ds, "extreme_X"),
+               "mass_fraction": w, "wt_percent": None if w is None else 100.0 * w,
+               "ppm": None if w is None else 1e6 * w, "partner": str(_scalar(ds, "extreme_partner")),
+               "at_range_end": bool(_scalar(ds, "extreme_at_range_end"))}
+    fit = None
+    if _scalar(ds, "fit_Q") is not None:
+        q = _scalar(ds, "fit_Q")
+        fit = {"Q_kJ_per_mol": q / 1000.0, "prefactor": _scalar(ds, "fit_A"),
+               "form": "x = prefactor * exp(-Q / (R T))", "T_min_K": _scalar(ds, "fit_T_min"),
+               "T_max_K": _scalar(ds, "fit_T_max"), "partner": str(_scalar(ds, "fit_partner")),
+               "points": int(_scalar(ds, "fit_points")), "R2": _scalar(ds, "fit_R2")}
+    return ext, fit
+
+
 def solvus_json(ds) -> dict:
-    """The JSON contract of ``solubility solvus --json`` for one solvus Dataset."""
+    """The JSON contract of ``solubility solvus --json`` for one solvus Dataset.
+
+    Numbers are in full precision; ``extreme`` is the most solute on the line and ``fit`` the Arrhenius fit
+    (null when the line has no point, or fewer than two to fit).
+    """
     ok = ds["status"].values == "ok"
+    changes = []
+    for t, x, w, b, a in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
+                             ds["partner_change_W"].values, ds["partner_below"].values,
+                             ds["partner_above"].values, strict=True):
+        w = _finite(w)
+        changes.append({"temperature_K": _finite(t), "mole_fraction": _finite(x), "mass_fraction": w,
+                        "wt_percent": None if w is None else 100.0 * w, "ppm": None if w is None else 1e6 * w,
+                        "below": str(b).split("+"), "above": str(a).split("+")})
+    ext, fit = _summary(ds)
     return {
         "temperature_K": [float(t) for t in ds["T"].values],
         "mole_fraction": _nan_to_none([float(v) for v in ds["X"].values]),
@@ -169,12 +225,9 @@ def solvus_json(ds) -> dict:
         "converged": [bool(v) for v in ds["converged"].values],
         "status": [str(v) for v in ds["status"].values],
         "reason": [str(v) for v in ds["reason"].values],
-        "partner_changes": [
-            {"temperature_K": _finite(t), "mole_fraction": _finite(x), "below": str(b).split("+"),
-             "above": str(a).split("+")}
-            for t, x, b, a in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
-                                  ds["partner_below"].values, ds["partner_above"].values, strict=True)
-        ],
+        "partner_changes": changes,
+        "extreme": ext,
+        "fit": fit,
         "database": ds.attrs.get("database"),
         "database_sha256": ds.attrs.get("database_sha256"),
         "phase": ds.attrs.get("phase"),
@@ -182,23 +235,51 @@ def solvus_json(ds) -> dict:
     }
 
 
+def _cell(v) -> str:
+    """A CSV cell: floats in full precision (shortest round-trip form), NaN as empty."""
+    if isinstance(v, bool | np.bool_):
+        return str(bool(v))
+    if isinstance(v, float | np.floating):
+        return repr(float(v)) if math.isfinite(float(v)) else ""
+    return str(v)
+
+
 def csv_text(ds) -> str:
-    """CSV table: one row per temperature, with a commented header of provenance and the caution."""
-    lines = [f"# {k}: {v}" for k, v in ds.attrs.items()]
-    cols = ["T", "T_C", "X", "W", "PPM", "Y", "partner", "status", "reason"]
-    header = [f"{c} [{ds[c].attrs.get('units')}]" if ds[c].attrs.get("units") else c for c in cols]
-    lines.append(",".join(header))
+    """CSV table (RFC 4180 quoting by the `csv` module): one row per temperature, wt% beside the fractions.
+
+    A commented header holds the provenance, the caution, the partner changes, the most solute on the line and
+    the Arrhenius fit, each number in full precision.
+    """
+    import csv
+    import io
+
+    buf = io.StringIO()
+    for k, v in ds.attrs.items():
+        buf.write(f"# {k}: {v}\n")
+    for i in range(ds.sizes.get("change", 0)):
+        buf.write(f"# partner_change: T [K] {_cell(ds['partner_change_T'].values[i])}, X [1] "
+                  f"{_cell(ds['partner_change_X'].values[i])}, W [1] {_cell(ds['partner_change_W'].values[i])}, "
+                  f"{ds['partner_below'].values[i]} below, {ds['partner_above'].values[i]} above\n")
+    if "extreme_T" not in ds:
+        from solubility.results.summary import add_summary
+
+        ds = add_summary(ds)
+    for name in ("extreme_T", "extreme_X", "extreme_W", "extreme_partner", "extreme_at_range_end", "fit_Q",
+                 "fit_A", "fit_T_min", "fit_T_max", "fit_partner", "fit_points", "fit_R2"):
+        units = ds[name].attrs.get("units")
+        buf.write(f"# {name}{f' [{units}]' if units else ''}: {_cell(ds[name].values.item())}"
+                  f"  ({ds[name].attrs['long_name']})\n")
+    cols = ["T", "T_C", "X", "W", "WT%", "PPM", "Y", "partner", "status", "reason"]
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(["W_percent [wt%]" if c == "WT%" else (f"{c} [{ds[c].attrs['units']}]"
+                                                           if ds[c].attrs.get("units") else c) for c in cols])
     for i in range(ds.sizes["T"]):
         row = []
         for c in cols:
-            v = ds[c].values[i]
-            if isinstance(v, float | np.floating):
-                row.append("" if not math.isfinite(float(v)) else repr(float(v)))
-            else:
-                text = str(v)
-                row.append(f'"{text}"' if ("," in text or '"' in text) else text)
-        lines.append(",".join(row))
-    return "\n".join(lines) + "\n"
+            v = 100.0 * float(ds["W"].values[i]) if c == "WT%" else ds[c].values[i]
+            row.append(_cell(v))
+        writer.writerow(row)
+    return buf.getvalue()
 
 
 def write_csv(ds, path: str | Path) -> Path:

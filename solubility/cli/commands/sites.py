@@ -74,7 +74,28 @@ def _misfit_dict(family: Any, args: argparse.Namespace) -> dict[str, Any] | None
         joules = m[f"{key}_J"]
         m[f"{key}_eV"] = None if joules is None else joules / _J_PER_EV
     m["estimate"] = "isotropic linear elasticity (Eshelby misfitting sphere): an estimate"
+    if not m["within_linear_range"]:
+        m["estimate"] += (f"; |eps| > {m['linear_misfit_limit']:g}, outside the range where linear elasticity is "
+                          "a fair estimate: indicative only")
     return m
+
+
+def _warn_outside(families: tuple, args: argparse.Namespace) -> None:
+    """One warning line on standard error when any misfit lies outside the linear-elastic range."""
+    import sys
+
+    from solubility.geometry.sites import LINEAR_MISFIT_LIMIT
+
+    if args.solute_radius is None or args.shear_modulus is None:
+        return
+    outside = [(k, m) for k, m in ((k, _misfit_dict(f, args)) for k, f in enumerate(families, start=1))
+               if m is not None and not m["within_linear_range"]]
+    if outside:
+        worst = max(abs(m["eps"]) for _, m in outside)
+        print(f"warning: misfit |eps| up to {worst:.3g} in site famil{'ies' if len(outside) > 1 else 'y'} "
+              f"{', '.join(str(k) for k, _ in outside)} exceeds {LINEAR_MISFIT_LIMIT:g}, where linear elasticity "
+              "is a fair estimate; the elastic energies there are indicative only and may misorder the sites",
+              file=sys.stderr)
 
 
 def _family_dict(family: Any, R: float, absolute: bool, args: argparse.Namespace) -> dict[str, Any]:
@@ -152,6 +173,8 @@ def _table(structure: Any, families: tuple, args: argparse.Namespace) -> str:
                 text += f", E rigid ~ {m['energy_rigid_eV']:.3g} eV"
             if m["energy_compressible_eV"] is not None:
                 text += f", E compressible ~ {m['energy_compressible_eV']:.3g} eV"
+            if not m["within_linear_range"] and m["energy_rigid_eV"] is not None:
+                text += f"  [|eps| > {m['linear_misfit_limit']:g}: outside linear elasticity, indicative only]"
             lines.append(text)
     if not families:
         lines.insert(3, "    (no interstitial site found)")
@@ -171,6 +194,7 @@ def run(args: argparse.Namespace) -> int:
     )
     _check_options(args, structure.absolute_scale)
     families = find_sites(structure)
+    _warn_outside(families, args)
     if args.json:
         absolute = structure.absolute_scale
         R = structure.host_radius

@@ -5,11 +5,16 @@ given with --exclude), and the boundary is solved exactly with it at zero amount
 object with --json; writes CSV, NetCDF and a figure on request (never over an existing file unless
 --overwrite).
 
+Exit status: 0 when the line holds at least one number; 3 when no point of the line has a number (every point
+host_unstable, below_limit, no_partner or failed: the table and the CSV/NetCDF/JSON outputs still say why, but
+no figure is written); 2 for bad input; 4 when an output cannot be written (e.g. a full disk).
+
 Results are only as good as the database: verify them against measurements; applicable codes and qualified
 engineering practice take precedence.
 
 example:
-  solubility solvus fe-c --phase BCC_A2 --solute C --temperatures 500:1000:25 --exclude GRAPHITE DIAMOND_A4
+  solubility solvus fe-c --phase BCC_A2 --solute C --temperatures 500:1000:25 --exclude GRAPHITE,DIAMOND_A4
+  solubility solvus fe-c --phase FCC_A1 --solute C --temperatures -10:100:10 --celsius --json
 """
 
 from __future__ import annotations
@@ -31,6 +36,20 @@ def _fix_item(text: str) -> tuple[str, str]:
     return el.strip().upper(), value.strip()
 
 
+def _names(text: str) -> list[str]:
+    names = [n.strip() for n in text.split(",")]
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"--exclude {text!r} holds an empty name; give --exclude A,B")
+    return names
+
+
+def _label_item(text: str) -> tuple[str, str]:
+    if "=" not in text or not text.split("=", 1)[0].strip() or not text.split("=", 1)[1].strip():
+        raise argparse.ArgumentTypeError(f"--label {text!r} is not PHASE=NAME, e.g. BCC_A2=ferrite")
+    phase, name = text.split("=", 1)
+    return phase.strip().upper(), name.strip()
+
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("database", metavar="DATABASE", help="TDB file or bundled name (see 'solubility databases')")
     parser.add_argument("--phase", required=True, help="host phase, e.g. BCC_A2")
@@ -38,8 +57,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--temperatures", required=True, metavar="START:STOP:STEP",
                         help="START:STOP:STEP (STOP included) or a comma-separated list, K (C with --celsius)")
     parser.add_argument("--celsius", action="store_true", help="temperatures are given in degrees Celsius")
-    parser.add_argument("--exclude", nargs="+", action="extend", default=[], metavar="PHASE",
-                        help="phases that may not appear (repeatable)")
+    parser.add_argument("--exclude", action="append", default=[], type=_names, metavar="PHASE[,PHASE...]",
+                        help="phases that may not appear: --exclude A,B or --exclude A --exclude B")
     parser.add_argument("--fix", action="append", default=[], type=_fix_item, metavar="EL=U",
                         help="u-fraction of another host element, e.g. CR=0.02 (repeatable)")
     parser.add_argument("--balance", metavar="EL", help="balance element of the host (when not evident)")
@@ -51,6 +70,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="composition unit of the figure (default wt%%)")
     parser.add_argument("--plot-temperature", default="C", choices=["C", "K"],
                         help="temperature unit of the figure (default C)")
+    parser.add_argument("--label", action="append", default=[], type=_label_item, metavar="PHASE=NAME",
+                        help="display name of a phase on the figure, e.g. BCC_A2=ferrite (repeatable)")
+    parser.add_argument("--fit-range", metavar="TMIN:TMAX",
+                        help="temperatures of the Arrhenius fit, K (C with --celsius); their points must share "
+                             "one partner (default: the longest run with one partner)")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
     parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
 
@@ -82,52 +107,84 @@ def _outputs(args) -> list[tuple[str, str]]:
     return outs
 
 
-def _table(ds) -> str:
-    solute, phase = ds.attrs["solute"], ds.attrs["phase"]
-    lines = [f"solvus of {solute} in {phase}  (database {ds.attrs['database']}, sha256 "
-             f"{ds.attrs['database_sha256'][:12]}...)",
-             f"{'T/K':>9} {'T/C':>8} {'x':>12} {'wt%':>11} {'ppm':>11} {'y':>11}  partner / note"]
-    for i in range(ds.sizes["T"]):
-        T = float(ds["T"].values[i])
-        if ds["status"].values[i] == "ok":
-            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {ds['X'].values[i]:12.5e} {100 * ds['W'].values[i]:11.5e} "
-                         f"{ds['PPM'].values[i]:11.4g} {ds['Y'].values[i]:11.5e}  {ds['partner'].values[i]}")
-        else:
-            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {'-':>12} {'-':>11} {'-':>11} {'-':>11}  "
-                         f"[{ds['status'].values[i]}] {ds['reason'].values[i]}")
-    for Tc, below, above in zip(ds["partner_change_T"].values, ds["partner_below"].values,
-                                ds["partner_above"].values, strict=True):
-        where = f"{Tc:.2f} K ({Tc - 273.15:.2f} C)" if math.isfinite(float(Tc)) else "an unlocated temperature"
-        lines.append(f"partner changes at {where}: {below} below, {above} above")
-    lines.append("Results are only as good as the database; verify against measurements. Applicable codes and "
-                 "qualified engineering practice take precedence.")
-    return "\n".join(lines)
+def _fit_range(args) -> tuple[float, float] | None:
+    if args.fit_range is None:
+        return None
+    parts = args.fit_range.split(":")
+    try:
+        lo, hi = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"--fit-range {args.fit_range!r} is not TMIN:TMAX, e.g. --fit-range 600:900") from None
+    if not (math.isfinite(lo) and math.isfinite(hi)) or lo >= hi:
+        raise InputError(f"--fit-range {args.fit_range!r} needs finite TMIN < TMAX, e.g. --fit-range 600:900")
+    shift = 273.15 if args.celsius else 0.0
+    return lo + shift, hi + shift
+
+
+def _compute(args, pressure: float):
+    """The solvus Dataset, with a progress bar on standard error when the line takes a while."""
+    from solubility.calc.boundary import solvus_line
+    from solubility.calc.inputs import prepare
+    from solubility.results.dataset import build_dataset, parse_temperatures
+
+    T = parse_temperatures(args.temperatures, celsius=args.celsius)
+    exclude = [name for group in args.exclude for name in group]
+    job = prepare(args.database, args.phase, args.solute, exclude=exclude, fix=_fix_map(args.fix),
+                  pressure=pressure, balance=args.balance)
+    bar = None
+    if not args.quiet and sys.stderr.isatty() and T.size > 1:
+        from tqdm import tqdm
+
+        # shown only once the line has taken a second, so quick lines stay quiet
+        bar = tqdm(total=T.size, unit="T", desc="solvus", file=sys.stderr, delay=1.0, leave=False)
+    try:
+        line = solvus_line(job.system, job.host, job.candidates, T,
+                           hooks=None if bar is None else (lambda _T: bar.update(1)))
+    finally:
+        if bar is not None:
+            bar.close()
+    return build_dataset(line, job)
 
 
 def run(args: argparse.Namespace) -> int:
-    from solubility import solvus
     from solubility.results.dataset import solvus_json, write_csv, write_netcdf
+    from solubility.results.summary import add_summary
+    from solubility.results.table import solvus_table
 
     try:
         pressure = float(args.pressure)
     except ValueError:
         raise InputError(f"--pressure {args.pressure!r} is not a number of Pa") from None
     outs = _outputs(args)
-    ds = solvus(args.database, args.phase, args.solute, args.temperatures, exclude=args.exclude,
-                fix=_fix_map(args.fix), pressure=pressure, balance=args.balance, celsius=args.celsius)
+    fit_range = _fit_range(args)
+    labels = dict(args.label)
+    ds = _compute(args, pressure)
+    if fit_range is not None:
+        ds = add_summary(ds, fit_range)
+    empty = not bool((ds["status"].values == "ok").any())
+    written = []
     for kind, path in outs:
         if kind == "csv":
             write_csv(ds, path)
         elif kind == "netcdf":
             write_netcdf(ds, path)
-        else:
+        elif not empty:
             from solubility.results.plotting import save_solvus_figure
 
-            save_solvus_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature)
+            save_solvus_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature,
+                               T_range=fit_range, labels=labels)
+        else:
+            continue
+        written.append((kind, path))
     if args.json:
         emit_json(solvus_json(ds))
     else:
-        print(_table(ds))
-        for kind, path in outs:
+        print(solvus_table(ds))
+        for kind, path in written:
             print(f"wrote {kind}: {path}", file=sys.stderr)
+    if empty:
+        states = ", ".join(sorted({str(s) for s in ds["status"].values}))
+        note = "; no figure written" if args.plot else ""
+        print(f"error: no point of the line has a number (status {states}){note}", file=sys.stderr)
+        return 3
     return 0
