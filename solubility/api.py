@@ -7,7 +7,7 @@ Each function here is thin: the work is done in `solubility.calc` and the Datase
 from __future__ import annotations
 
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 from solubility.calc.inputs import MAX_TEMPERATURES
 from solubility.errors import InputError
@@ -18,7 +18,7 @@ __all__ = ["fit", "solvus", "uptake"]
 def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
            fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
            celsius: bool = False, parameters: Mapping[str, float] | None = None,
-           max_temperatures: int | None = MAX_TEMPERATURES):
+           max_temperatures: int | None = MAX_TEMPERATURES, progress: Callable[[float], None] | None = None):
     """Terminal solubility of `solute` in the host `phase` against temperature.
 
     Parameters
@@ -47,6 +47,8 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
         Values of database symbols left free at compile time (name -> value); a new value does not recompile.
     max_temperatures
         Most temperatures accepted (20,000 by default); None lifts the limit.
+    progress
+        Called with each temperature (K) before it is solved (a progress bar); it may raise to stop the line.
 
     Returns
     -------
@@ -64,7 +66,7 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
     T = parse_temperatures(temperatures, celsius=celsius, max_count=max_temperatures)
     req = prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
                        parameters=parameters)
-    line = boundary.solvus_line(req, T)
+    line = boundary.solvus_line(req, T, hooks=progress)
     ds = build_dataset(line, req)
     if req.parameters:  # provenance: the values the free parameters had (JSON, flat attrs)
         ds.attrs["parameters"] = json.dumps(dict(req.parameters))

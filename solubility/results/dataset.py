@@ -40,6 +40,7 @@ from solubility.constants import ZERO_CELSIUS
 __all__ = [
     "CAUTION",
     "build_dataset",
+    "netcdf_bytes",
     "parse_temperatures",
     "solvus_json",
     "write_csv",
@@ -289,15 +290,25 @@ def write_csv(ds, path: str | Path) -> Path:
     return atomic_write_text(path, csv_text(ds))
 
 
-def write_netcdf(ds, path: str | Path) -> Path:
-    """Write the Dataset as NetCDF-4 (h5netcdf) atomically; string variables are stored as text."""
-    from solubility._io import atomic_write
+def netcdf_bytes(ds) -> bytes:
+    """The Dataset as NetCDF-4 (h5netcdf) bytes, string variables stored as text.
 
+    Encoded in memory, so that a disk that fills up fails in a plain write of bytes (a clean error) and never
+    inside the HDF5 library.
+    """
     out = ds.copy()
     for name in out.variables:
         if out[name].dtype == object:
             out[name] = out[name].astype(str)
-    return atomic_write(path, lambda tmp: out.to_netcdf(tmp, engine="h5netcdf"))
+    return bytes(out.to_netcdf(engine="h5netcdf"))
+
+
+def write_netcdf(ds, path: str | Path) -> Path:
+    """Write the Dataset as NetCDF-4 (h5netcdf) atomically (encoded in memory first, see `netcdf_bytes`)."""
+    from solubility._io import atomic_write
+
+    data = netcdf_bytes(ds)
+    return atomic_write(path, lambda tmp: Path(tmp).write_bytes(data))
 
 
 def write_json(ds, path: str | Path) -> Path:

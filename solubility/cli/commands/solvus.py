@@ -94,16 +94,17 @@ def _fix_map(items: list[tuple[str, str]]) -> dict[str, float]:
 
 
 def _outputs(args) -> list[tuple[str, str]]:
-    from solubility._io import check_output_path
+    """The requested outputs, checked before any work (real paths; never the database; never one file twice)."""
+    from solubility._io import check_outputs
+    from solubility.databases.reader import database_path
 
     outs = [(kind, path) for kind, path in (("csv", args.csv), ("netcdf", args.netcdf), ("plot", args.plot))
             if path]
-    if len({path for _, path in outs}) != len(outs):
-        raise InputError("--csv, --netcdf and --plot must name different files")
-    for _, path in outs:
-        check_output_path(path, overwrite=args.overwrite)
     if args.plot and not args.plot.lower().endswith((".png", ".pdf", ".svg")):
         raise InputError(f"--plot {args.plot!r} must end in .png, .pdf or .svg")
+    database = database_path(args.database)
+    check_outputs([path for _, path in outs], inputs=[database] if database is not None else [],
+                  overwrite=args.overwrite)
     return outs
 
 
@@ -123,14 +124,11 @@ def _fit_range(args) -> tuple[float, float] | None:
 
 def _compute(args, pressure: float):
     """The solvus Dataset, with a progress bar on standard error when the line takes a while."""
-    from solubility.calc.boundary import solvus_line
-    from solubility.calc.inputs import prepare
-    from solubility.results.dataset import build_dataset, parse_temperatures
+    from solubility.api import solvus
+    from solubility.calc.inputs import parse_temperatures
 
     T = parse_temperatures(args.temperatures, celsius=args.celsius)
     exclude = [name for group in args.exclude for name in group]
-    job = prepare(args.database, args.phase, args.solute, exclude=exclude, fix=_fix_map(args.fix),
-                  pressure=pressure, balance=args.balance)
     bar = None
     if not args.quiet and sys.stderr.isatty() and T.size > 1:
         from tqdm import tqdm
@@ -138,16 +136,20 @@ def _compute(args, pressure: float):
         # shown only once the line has taken a second, so quick lines stay quiet
         bar = tqdm(total=T.size, unit="T", desc="solvus", file=sys.stderr, delay=1.0, leave=False)
     try:
-        line = solvus_line(job.system, job.host, job.candidates, T,
-                           hooks=None if bar is None else (lambda _T: bar.update(1)))
+        return solvus(args.database, args.phase, args.solute, T, exclude=exclude, fix=_fix_map(args.fix),
+                      pressure=pressure, balance=args.balance,
+                      progress=None if bar is None else (lambda _T: bar.update(1)))
     finally:
         if bar is not None:
             bar.close()
-    return build_dataset(line, job)
 
 
 def run(args: argparse.Namespace) -> int:
-    from solubility.results.dataset import solvus_json, write_csv, write_netcdf
+    import io
+    from pathlib import Path
+
+    from solubility._io import atomic_outputs
+    from solubility.results.dataset import csv_text, netcdf_bytes, solvus_json
     from solubility.results.summary import add_summary
     from solubility.results.table import solvus_table
 
@@ -163,19 +165,29 @@ def run(args: argparse.Namespace) -> int:
         ds = add_summary(ds, fit_range)
     empty = not bool((ds["status"].values == "ok").any())
     written = []
-    for kind, path in outs:
-        if kind == "csv":
-            write_csv(ds, path)
-        elif kind == "netcdf":
-            write_netcdf(ds, path)
-        elif not empty:
-            from solubility.results.plotting import save_solvus_figure
+    with atomic_outputs() as files:  # all outputs or none
+        for kind, path in outs:
+            if kind == "csv":
+                files.write_text(path, csv_text(ds))
+            elif kind == "netcdf":
+                data = netcdf_bytes(ds)
+                files.write(path, lambda tmp, data=data: Path(tmp).write_bytes(data))
+            elif not empty:
+                from solubility.results.plotting import pyplot, solvus_figure
 
-            save_solvus_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature,
-                               T_range=fit_range, labels=labels)
-        else:
-            continue
-        written.append((kind, path))
+                fig = solvus_figure(ds, units=args.plot_units, temperature=args.plot_temperature,
+                                    T_range=fit_range, labels=labels)
+                image = io.BytesIO()
+                try:
+                    fig.savefig(image, format=Path(path).suffix.lower().lstrip("."), dpi=150, bbox_inches="tight")
+                finally:
+                    fig.clf()
+                    pyplot().close(fig)
+                png = image.getvalue()
+                files.write(path, lambda tmp, data=png: Path(tmp).write_bytes(data))
+            else:
+                continue
+            written.append((kind, path))
     if args.json:
         emit_json(solvus_json(ds))
     else:
