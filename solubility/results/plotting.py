@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from solubility.constants import ZERO_CELSIUS
 from solubility.errors import InputError
 from solubility.results._layout import free_boxes, place_text, pyplot, readable_ticks
 from solubility.results.summary import R, arrhenius_fit, extreme, segments
@@ -51,7 +52,7 @@ def _tu(temperature: str) -> str:
 
 
 def _shown(T_K: float, temperature: str) -> float:
-    return T_K - (273.15 if temperature == "C" else 0.0)
+    return T_K - (ZERO_CELSIUS if temperature == "C" else 0.0)
 
 
 def _sig(v: float, digits: int = 3) -> str:

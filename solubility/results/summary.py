@@ -15,12 +15,8 @@ import math
 
 import numpy as np
 
+from solubility.constants import R
 from solubility.errors import InputError
-
-try:  # the project's one gas constant (pycalphad's value) once solubility.constants exists
-    from solubility.constants import R
-except ImportError:  # pragma: no cover - the same value, until that module lands
-    R = 8.3145  # J/(mol K), pycalphad's value
 
 __all__ = ["R", "add_summary", "arrhenius_fit", "extreme", "segments"]
 

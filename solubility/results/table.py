@@ -9,11 +9,12 @@ import math
 
 import numpy as np
 
+from solubility.constants import ZERO_CELSIUS
+
 __all__ = ["DIGITS", "column", "solvus_table"]
 
 #: significant digits of the compositions in the table (a database rarely supports more)
 DIGITS = 4
-ZERO_CELSIUS = 273.15
 
 
 def _plain(v: float, digits: int) -> str:

@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from solubility.constants import ZERO_CELSIUS
 from solubility.errors import InputError
 
 __all__ = ["plot_surface_map", "plot_uptake", "save_uptake_figure"]
@@ -38,7 +39,7 @@ def plot_uptake(datasets, ax=None, *, units: str = "wt%", temperature: str = "C"
     ax = _axes(ax)
     var, factor, label = _SCALE[units]
     for ds in datasets:
-        T = ds["T"].values - (273.15 if temperature == "C" else 0.0)
+        T = ds["T"].values - (ZERO_CELSIUS if temperature == "C" else 0.0)
         y = ds[var].values * factor
         status = ds["status"].values
         ok = status == "ok"
@@ -69,7 +70,7 @@ def plot_surface_map(limit, ax=None, *, quantity: str = "activity", temperature:
         raise InputError(f"quantity {quantity!r} is not in the limit Dataset; give one of "
                          f"{', '.join(v for v in ('activity', 'p_X2', 'K_N') if v in limit)}")
     ax = _axes(ax)
-    T = limit["T"].values - (273.15 if temperature == "C" else 0.0)
+    T = limit["T"].values - (ZERO_CELSIUS if temperature == "C" else 0.0)
     q = limit[quantity].values
     partner = limit["partner"].values
     ok = np.isfinite(q)
@@ -94,7 +95,7 @@ def plot_surface_map(limit, ax=None, *, quantity: str = "activity", temperature:
         ax.text(T[mid], q[mid] * 8, f"{name.replace('+', ' + ')} forms", fontsize=8, color="tab:red", ha="center")
     for Tc in limit["partner_change_T"].values if "partner_change_T" in limit else ():
         if np.isfinite(Tc):
-            ax.axvline(Tc - (273.15 if temperature == "C" else 0.0), color="0.5", ls=":", lw=1)
+            ax.axvline(Tc - (ZERO_CELSIUS if temperature == "C" else 0.0), color="0.5", ls=":", lw=1)
     ax.set_xlabel(f"temperature ({'°C' if temperature == 'C' else 'K'})")
     ax.set_ylabel(limit[quantity].attrs.get("long_name", quantity))
     ax.set_title(f"stable phase at the surface: {host} or what forms from it", fontsize=9)
@@ -102,20 +103,12 @@ def plot_surface_map(limit, ax=None, *, quantity: str = "activity", temperature:
     return ax
 
 
-def save_uptake_figure(datasets, path: str | Path, *, units: str = "wt%", temperature: str = "C",
-                       limit=None, quantity: str = "activity") -> Path:
-    """Content against temperature (and the surface map when `limit` is given), written atomically."""
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
-
-    from solubility._io import atomic_write
+def uptake_figure(datasets, *, units: str = "wt%", temperature: str = "C", limit=None, quantity: str = "activity"):
+    """Content against temperature (and the surface map when `limit` is given) as a Figure; the caller closes it."""
+    from solubility.results._layout import pyplot
     from solubility.results.dataset import CAUTION
 
-    suffix = Path(path).suffix.lower().lstrip(".")
-    if suffix not in ("png", "pdf", "svg"):
-        raise InputError(f"figure file {str(path)!r} must end in .png, .pdf or .svg")
+    plt = pyplot()
     n = 2 if limit is not None else 1
     fig, axes = plt.subplots(1, n, figsize=(6.5 * n, 4.8), layout="constrained", squeeze=False)
     plot_uptake(datasets, axes[0, 0], units=units, temperature=temperature)
@@ -126,7 +119,34 @@ def save_uptake_figure(datasets, path: str | Path, *, units: str = "wt%", temper
     fig.text(0.5, -0.01, f"database {first.attrs.get('database')} (sha256 {sha}...); gas data: "
                          f"{first.attrs.get('gas_data_source', '')[:90]}. {CAUTION}", fontsize=6, color="0.35",
              va="top", ha="center", wrap=True)
+    return fig
+
+
+def uptake_figure_bytes(datasets, file_format: str, **kwargs) -> bytes:
+    """`uptake_figure` rendered to bytes (png, pdf or svg), the figure closed."""
+    import io
+
+    from solubility.results._layout import pyplot
+
+    if file_format not in ("png", "pdf", "svg"):
+        raise InputError(f"figure format {file_format!r} is not png, pdf or svg")
+    fig = uptake_figure(datasets, **kwargs)
+    buf = io.BytesIO()
     try:
-        return atomic_write(path, lambda tmp: fig.savefig(tmp, format=suffix, dpi=150, bbox_inches="tight"))
+        fig.savefig(buf, format=file_format, dpi=150, bbox_inches="tight")
     finally:
-        plt.close(fig)
+        pyplot().close(fig)
+    return buf.getvalue()
+
+
+def save_uptake_figure(datasets, path: str | Path, *, units: str = "wt%", temperature: str = "C",
+                       limit=None, quantity: str = "activity") -> Path:
+    """Content against temperature (and the surface map when `limit` is given), written atomically."""
+    from solubility._io import atomic_write
+
+    suffix = Path(path).suffix.lower().lstrip(".")
+    if suffix not in ("png", "pdf", "svg"):
+        raise InputError(f"figure file {str(path)!r} must end in .png, .pdf or .svg")
+    data = uptake_figure_bytes(datasets, suffix, units=units, temperature=temperature, limit=limit,
+                               quantity=quantity)
+    return atomic_write(path, lambda tmp: Path(tmp).write_bytes(data))

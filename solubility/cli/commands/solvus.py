@@ -24,6 +24,7 @@ import math
 import sys
 
 from solubility.cli.commands._common import emit_json
+from solubility.constants import ZERO_CELSIUS
 from solubility.errors import InputError
 
 
@@ -118,7 +119,7 @@ def _fit_range(args) -> tuple[float, float] | None:
         raise InputError(f"--fit-range {args.fit_range!r} is not TMIN:TMAX, e.g. --fit-range 600:900") from None
     if not (math.isfinite(lo) and math.isfinite(hi)) or lo >= hi:
         raise InputError(f"--fit-range {args.fit_range!r} needs finite TMIN < TMAX, e.g. --fit-range 600:900")
-    shift = 273.15 if args.celsius else 0.0
+    shift = ZERO_CELSIUS if args.celsius else 0.0
     return lo + shift, hi + shift
 
 

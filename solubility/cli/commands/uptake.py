@@ -21,7 +21,8 @@ import argparse
 import sys
 
 from solubility.cli.commands._common import emit_json
-from solubility.cli.commands.solvus import _fix_item, _fix_map, _outputs
+from solubility.cli.commands.solvus import _fix_item, _fix_map, _names, _outputs
+from solubility.constants import ZERO_CELSIUS
 from solubility.errors import InputError
 
 
@@ -42,8 +43,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="bring the --atmosphere to gas equilibrium first (default: taken as given)")
     parser.add_argument("--sieverts-range", metavar="TMIN:TMAX",
                         help="temperatures (K) of the Sieverts enthalpy fit (default: all ok points)")
-    parser.add_argument("--exclude", nargs="+", action="extend", default=[], metavar="PHASE",
-                        help="phases that may not appear (repeatable)")
+    parser.add_argument("--exclude", action="append", default=[], type=_names, metavar="PHASE[,PHASE...]",
+                        help="phases that may not appear: --exclude A,B or --exclude A --exclude B")
     parser.add_argument("--fix", action="append", default=[], type=_fix_item, metavar="EL=U",
                         help="u-fraction of another host element, e.g. CR=0.02 (repeatable)")
     parser.add_argument("--balance", metavar="EL", help="balance element of the host (when not evident)")
@@ -88,10 +89,10 @@ def _table(ds) -> str:
         tail = f" {ds[extra].values[i]:12.4g}" if extra else ""
         if st in ("ok", "metastable"):
             note = "ok" if st == "ok" else f"[metastable] {ds['forms_instead'].values[i].replace('+', ', ')} forms"
-            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {ds['X'].values[i]:12.5e} {100 * ds['W'].values[i]:11.5e} "
+            lines.append(f"{T:9.2f} {T - ZERO_CELSIUS:8.2f} {ds['X'].values[i]:12.5e} {100 * ds['W'].values[i]:11.5e} "
                          f"{ds['PPM'].values[i]:11.4g} {ds['activity'].values[i]:10.4g}{tail}  {note}")
         else:
-            lines.append(f"{T:9.2f} {T - 273.15:8.2f} {'-':>12} {'-':>11} {'-':>11} "
+            lines.append(f"{T:9.2f} {T - ZERO_CELSIUS:8.2f} {'-':>12} {'-':>11} {'-':>11} "
                          f"{ds['activity'].values[i]:10.4g}{tail}  [{st}] {ds['reason'].values[i]}")
     if "sieverts_enthalpy_J_per_mol" in a:
         lines.append(f"apparent enthalpy of solution (1/2 {a['solute']}2 -> {a['solute']}): "
@@ -103,9 +104,11 @@ def _table(ds) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
     from solubility import uptake
-    from solubility._io import atomic_write_text
-    from solubility.results.dataset import write_netcdf
+    from solubility._io import atomic_outputs
+    from solubility.results.dataset import netcdf_bytes
     from solubility.results.uptake_dataset import uptake_csv_text, uptake_json
 
     try:
@@ -115,18 +118,23 @@ def run(args: argparse.Namespace) -> int:
     outs = _outputs(args)
     ds = uptake(args.database, args.phase, args.solute, args.temperatures, activity=args.activity,
                 reference=args.reference, partial_pressure=args.partial_pressure, atmosphere=args.atmosphere,
-                equilibrate_gas=args.equilibrate_gas, exclude=args.exclude, fix=_fix_map(args.fix),
+                equilibrate_gas=args.equilibrate_gas, exclude=[n for group in args.exclude for n in group],
+                fix=_fix_map(args.fix),
                 pressure=pressure, balance=args.balance, celsius=args.celsius,
                 sieverts_range=_range(args.sieverts_range))
-    for kind, path in outs:
-        if kind == "csv":
-            atomic_write_text(path, uptake_csv_text(ds))
-        elif kind == "netcdf":
-            write_netcdf(ds, path)
-        else:
-            from solubility.results.uptake_plots import save_uptake_figure
+    with atomic_outputs() as files:  # all outputs or none
+        for kind, path in outs:
+            if kind == "csv":
+                files.write_text(path, uptake_csv_text(ds))
+            elif kind == "netcdf":
+                data = netcdf_bytes(ds)
+                files.write(path, lambda tmp, data=data: Path(tmp).write_bytes(data))
+            else:
+                from solubility.results.uptake_plots import uptake_figure_bytes
 
-            save_uptake_figure(ds, path, units=args.plot_units, temperature=args.plot_temperature)
+                image = uptake_figure_bytes(ds, Path(path).suffix.lower().lstrip("."), units=args.plot_units,
+                                            temperature=args.plot_temperature)
+                files.write(path, lambda tmp, data=image: Path(tmp).write_bytes(data))
     if args.json:
         emit_json(uptake_json(ds))
     else:
