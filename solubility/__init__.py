@@ -29,7 +29,7 @@ _EXPORTS = {
     "load_database": "databases.reader",
     "audit_database": "databases.reader",
     "bundled_databases": "databases.reader",
-    "solvus": "calc.boundary",
+    "solvus": "api",
     "sweep": "sweeps",
     "read_job": "sweeps",
     "Case": "sweeps",

@@ -23,10 +23,10 @@ import numpy as np
 import pytest
 
 from solubility.calc.boundary import solvus_line
-from solubility.calc.inputs import prepare
+from solubility.calc.host import prepare_host
 from solubility.cli.main import main
 from solubility.results.dataset import build_dataset, solvus_json
-from solubility.thermo.system import ThermoSystem
+from solubility.thermo.system import BoundSystem
 
 TEMPERATURES = (700.0, 750.0, 800.0, 850.0, 900.0)  # K
 EXCLUDE = ("GRAPHITE", "DIAMOND_A4")
@@ -45,13 +45,13 @@ class InjectedError(ArithmeticError):
 
 @pytest.fixture(scope="module")
 def job():
-    return prepare("fe-c", "BCC_A2", "C", exclude=EXCLUDE)
+    return prepare_host("fe-c", "BCC_A2", "C", exclude=EXCLUDE)
 
 
 @pytest.fixture(scope="module")
 def reference(job):
     """The line without any failure."""
-    return build_dataset(solvus_line(job.system, job.host, job.candidates, TEMPERATURES), job)
+    return build_dataset(solvus_line(job, TEMPERATURES), job)
 
 
 def test_reference_line_is_all_ok(reference):
@@ -98,14 +98,14 @@ def test_hook_failure_flags_one_point(job, reference, t_bad, error):
         if temperature == t_bad:
             raise error(f"injected at {temperature:g} K")
 
-    line = solvus_line(job.system, job.host, job.candidates, TEMPERATURES, hooks=hooks)
+    line = solvus_line(job, TEMPERATURES, hooks=hooks)
     assert sorted(calls) == sorted(TEMPERATURES)  # the hook ran at every temperature, the line went on
     _check_flagged_line(build_dataset(line, job), reference, t_bad, f"injected at {t_bad:g} K")
 
 
 def _failing_driving_force(monkeypatch, phase: str, t_bad: float) -> list[float]:
-    """Make ThermoSystem.driving_force raise FloatingPointError for `phase` at `t_bad`; returns the hits."""
-    real = ThermoSystem.driving_force
+    """Make BoundSystem.driving_force raise FloatingPointError for `phase` at `t_bad`; returns the hits."""
+    real = BoundSystem.driving_force
     hits: list[float] = []
 
     def driving_force(self, name, mu, temperature, y0):
@@ -114,7 +114,7 @@ def _failing_driving_force(monkeypatch, phase: str, t_bad: float) -> list[float]
             raise FloatingPointError(f"overflow injected in {name} at {temperature:g} K")
         return real(self, name, mu, temperature, y0)
 
-    monkeypatch.setattr(ThermoSystem, "driving_force", driving_force)
+    monkeypatch.setattr(BoundSystem, "driving_force", driving_force)
     return hits
 
 
@@ -122,7 +122,7 @@ def _failing_driving_force(monkeypatch, phase: str, t_bad: float) -> list[float]
 def test_driving_force_failure_flags_one_point(job, reference, monkeypatch, t_bad):
     """FloatingPointError deep in the partner's driving force at one temperature: flagged point, finished line."""
     hits = _failing_driving_force(monkeypatch, PARTNER, t_bad)
-    line = solvus_line(job.system, job.host, job.candidates, TEMPERATURES)
+    line = solvus_line(job, TEMPERATURES)
     assert hits, "the injected failure was never reached"
     _check_flagged_line(build_dataset(line, job), reference, t_bad, "overflow injected")
 

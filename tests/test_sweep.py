@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from solubility.calc.boundary import solvus
+from solubility.api import solvus
 from solubility.errors import InputError, JobError, OutputError
 from solubility.sweeps import Case, case_dataset, sweep, sweep_json
 

@@ -7,11 +7,12 @@ chemical potentials, every other candidate phase staying below zero. The partner
 from the driving forces of all candidate phases, never assumed.
 
 Numerics. The solute site fraction y enters as s = ln y, and the host's chemical potentials are evaluated from
-its own Gibbs energy at that composition (`solubility.thermo.system.ThermoSystem.chemical_potentials`), never taken
-from a global solver. The boundary condition DF_partner(mu(s)) = 0 is solved by a safeguarded Newton iteration
-in s, so the relative accuracy of the composition is the same at x = 1e-3 and at x = 1e-15. Along a line of
-temperatures each point starts from the last; a change of partner is detected by the check of all candidates
-and located by a root search in temperature to 0.01 K.
+its own Gibbs energy at that composition (`solubility.calc.host.host_potentials`), never taken from a global
+solver; the driving forces of the other candidates come from `solubility.calc.host.refine`. The boundary
+condition DF_partner(mu(s)) = 0 is solved by a safeguarded Newton iteration in s, so the relative accuracy of the
+composition is the same at x = 1e-3 and at x = 1e-15. Along a line of temperatures each point starts from the
+last; a change of partner is detected by the check of all candidates and located by a root search in
+temperature to 0.01 K.
 """
 
 from __future__ import annotations
@@ -22,15 +23,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus", "solvus_line"]
+from solubility.calc.host import DF_TOL, REFINE_MARGIN, HostModel, HostRequest, host_potentials, refine
+from solubility.constants import R
 
-#: a driving force within this of zero (J per mole of atoms) counts as zero (double precision noise of
-#: Gibbs energies of order 1e5 J/mol is about 1e-7 J/mol)
-DF_TOL = 1e-4
-#: phases whose sampled driving force is below -REFINE_MARGIN (J/mol of atoms) are not refined. The sample's
-#: shortfall (refined minus sampled driving force) is of order 10 J/mol for the smooth CALPHAD functions; the
-#: engine also widens a phase's margin to 20 times the largest shortfall it has seen for that phase
-REFINE_MARGIN = 1000.0
+__all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus_line"]
+
 #: smallest solute site fraction searched; a solubility below it is flagged, not returned as a number
 Y_MIN = 1e-30
 #: largest solute site fraction searched (the interstitial sublattice is then practically full)
@@ -38,8 +35,6 @@ Y_MAX = 1.0 - 1e-9
 #: a cold start looks for a single-phase field narrower than its scan spacing only where the least unstable scan
 #: point is within this many RT of stability (between scan points F(s) changes by a fraction of RT)
 NARROW_SEARCH = 0.5
-#: gas constant, J/(mol K), pycalphad's value (only used to scale NARROW_SEARCH)
-R = 8.3145
 #: temperature tolerance for locating a change of partner, K
 T_TOL = 0.005
 #: ln(y) grid of the cold scan: one point a decade below y = 1e-6 (a single-phase field that narrow at such
@@ -50,40 +45,6 @@ _SCAN = np.log(np.unique(np.concatenate((
     np.logspace(-6, math.log10(0.5), 47),
     np.linspace(0.5, Y_MAX, 9),
 ))))
-
-
-@dataclass(frozen=True)
-class HostModel:
-    """The host phase's constitution as a function of one number, s = ln(y_solute).
-
-    Attributes
-    ----------
-    phase
-        Host phase name.
-    solute
-        Interstitial solute element.
-    base_y
-        Site fractions with the solute's and VA's entries still to be set (substitutional ones fixed).
-    solute_index, vacancy_index
-        Indices of the solute and of VA among the host's site-fraction variables.
-    a, c
-        Substitutional and interstitial site ratios (moles of sites per formula unit).
-    """
-
-    phase: str
-    solute: str
-    base_y: np.ndarray
-    solute_index: int
-    vacancy_index: int
-    a: float
-    c: float
-
-    def y(self, s: float) -> np.ndarray:
-        """Site fractions for ln(y_solute) = s (s <= 0)."""
-        y = self.base_y.copy()
-        y[self.solute_index] = math.exp(s)
-        y[self.vacancy_index] = -math.expm1(s)
-        return y
 
 
 @dataclass(frozen=True)
@@ -156,18 +117,21 @@ class SolvusLine:
 
 
 class _Engine:
-    """Boundary solver for one host on one compiled system at one pressure."""
+    """Boundary solver for one host request (one compiled system at one pressure and parameter set)."""
 
-    def __init__(self, system, host: HostModel, candidates: Sequence[str]) -> None:
-        self.system = system
-        self.host = host
-        self.candidates = tuple(candidates)
-        self.others = tuple(p for p in self.candidates if p != host.phase)
+    def __init__(self, req: HostRequest) -> None:
+        self.req = req
+        self.system = req.system
+        self.host = req.host
+        self.others = req.others
         self.margin = dict.fromkeys(self.others, REFINE_MARGIN)
 
     # ---------------------------------------------------------------- primitives
     def mu(self, s: float, T: float) -> np.ndarray:
-        mu, _ = self.system.chemical_potentials(self.host.phase, self.host.y(s), T)
+        mu, _ = host_potentials(self.req, s, T)
+        if not np.all(np.isfinite(mu)):
+            raise FloatingPointError(f"the Gibbs energy of {self.host.phase} is not a finite number at "
+                                     f"y({self.host.solute}) = {math.exp(s):.6g}, T = {T:g} K")
         return mu
 
     def df(self, phase: str, mu: np.ndarray, T: float, y0: np.ndarray | None):
@@ -177,33 +141,9 @@ class _Engine:
 
     def all_df(self, mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None = None,
                quick: bool = False) -> dict:
-        """Driving force (J/mol of atoms) of every non-host candidate at `mu`.
-
-        Each phase is first evaluated on its fixed constitution sample (a lower bound of its driving force).
-        A phase whose best sample lies below minus its margin is taken as it is. Any other is refined: from its
-        hint (its optimum at a nearby state) if it has one, and from its best sample where no hint is given or
-        the sample beats the hint's optimum. With `quick`, when a sample already has a positive driving force
-        (so the host is unstable there whatever refinement finds) the samples are returned unrefined.
-        Returns {phase: (value, y, converged)}.
-        """
-        hints = hints or {}
-        sampled = self.system.screen(mu, T, self.others)
-        if quick and max(v for v, _ in sampled.values()) > 0:
-            return {phase: (value, y, True) for phase, (value, y) in sampled.items()}
-        out = {}
-        for phase, (value, y_best) in sampled.items():
-            if value < -self.margin[phase]:
-                out[phase] = (value, y_best, True)
-                continue
-            hint = hints.get(phase)
-            best = self.system.driving_force(phase, mu, T, hint if hint is not None else y_best)
-            if hint is not None and value > best.value + DF_TOL:
-                alt = self.system.driving_force(phase, mu, T, y_best)
-                if alt.value > best.value:
-                    best = alt
-            self.margin[phase] = max(self.margin[phase], 20.0 * (best.value - value))
-            out[phase] = (best.value, best.y, best.converged)
-        return out
+        """Driving force of every non-host candidate at `mu` (`solubility.calc.host.refine`, with the margins
+        this line has learnt). Returns {phase: DrivingForce}."""
+        return refine(self.system, self.others, mu, T, hints, self.margin, quick)
 
     # ---------------------------------------------------------------- boundary with a known partner
     def solve_partner(self, phase: str, T: float, s0: float, y0: np.ndarray | None,
@@ -255,16 +195,16 @@ class _Engine:
         hints = dict(prev_hints or {})
         hints.update({p: r.y for p, r in partner_res.items()})
         dfs = self.all_df(mu, T, hints)
-        partners = tuple(sorted(p for p, (v, _, _) in dfs.items() if abs(v) <= DF_TOL))
-        others = [v for p, (v, _, _) in dfs.items() if p not in partners]
+        partners = tuple(sorted(p for p, d in dfs.items() if abs(d.value) <= DF_TOL))
+        others = [d.value for p, d in dfs.items() if p not in partners]
         max_other = max(others) if others else -math.inf
-        phase_y = {p: y for p, (_, y, _) in dfs.items()}
+        phase_y = {p: d.y for p, d in dfs.items()}
         if not partners:
             return BoundaryPoint(T, s, (), mu, "failed", "no partner at zero driving force", phase_y, max_other)
         if max_other > DF_TOL:
             return BoundaryPoint(T, s, partners, mu, "failed", "another phase is more stable at the boundary",
                                  phase_y, max_other)
-        if not all(dfs[p][2] for p in partners):
+        if not all(dfs[p].converged for p in partners):
             return BoundaryPoint(T, s, partners, mu, "failed", "partner constitution did not converge",
                                  phase_y, max_other)
         return BoundaryPoint(T, s, partners, mu, "ok", "", phase_y, max_other)
@@ -272,8 +212,8 @@ class _Engine:
     def max_df(self, s: float, T: float, quick: bool = False) -> tuple[float, str, dict]:
         """F(s): the largest driving force of another phase against the host at ln(y) = s (see `all_df`)."""
         dfs = self.all_df(self.mu(s, T), T, quick=quick)
-        phase = max(dfs, key=lambda p: dfs[p][0])
-        return dfs[phase][0], phase, dfs
+        phase = max(dfs, key=lambda p: dfs[p].value)
+        return dfs[phase].value, phase, dfs
 
     def cold(self, T: float) -> BoundaryPoint:
         """Solve at T from nothing: scan the host's solute content, then solve the first crossing.
@@ -316,7 +256,7 @@ class _Engine:
         """Whether the most stable other phase of a scan point holds more solute than the host there."""
         _, phase, dfs = scan
         k = self.system.elements.index(self.host.solute)
-        x_phase = (self.system.phases[phase].moles @ dfs[phase][1])
+        x_phase = (self.system.phases[phase].moles @ dfs[phase].y)
         return bool(x_phase[k] / x_phase.sum() > 1e-6)
 
     def _narrow_field(self, T: float, grid: list[float], values: list) -> tuple[int, float] | None:
@@ -400,24 +340,20 @@ class _Engine:
         return PartnerChange(round(T_star, 3), a.partners, b.partners, sol[0] if sol else float("nan"))
 
 
-def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures: Sequence[float],
-                *, hooks=None) -> SolvusLine:
-    """Compute the solvus on a compiled system at each temperature (K).
+def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) -> SolvusLine:
+    """Compute the solvus of a host request at each temperature (K).
 
     Parameters
     ----------
-    system
-        A `solubility.thermo.system.ThermoSystem` holding every candidate phase.
-    host
-        The host's constitution (`HostModel`).
-    candidates
-        Phases that may appear (the host included).
+    req
+        The host request (`solubility.calc.host.prepare_host`).
     temperatures
         K, any order; the result keeps this order.
     hooks
         Test hook: a callable ``hooks(T)`` that may raise to inject a failure at one temperature.
     """
-    engine = _Engine(system, host, candidates)
+    engine = _Engine(req)
+    system, host = req.system, req.host
     T = np.asarray(temperatures, dtype=float)
     order = np.argsort(T, kind="stable")
     points: list[BoundaryPoint | None] = [None] * T.size
@@ -444,49 +380,4 @@ def solvus_line(system, host: HostModel, candidates: Sequence[str], temperatures
         elif point.status != "failed":
             prev = before = None  # the line is broken: start the next point from nothing
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
-                      np.asarray(system.molar_masses), tuple(candidates), system.phases[host.phase].moles)
-
-
-def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
-           fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
-           celsius: bool = False):
-    """Terminal solubility of `solute` in the host `phase` against temperature.
-
-    Parameters
-    ----------
-    database
-        Path to a TDB file, the name of a bundled database, or a pycalphad Database.
-    phase
-        Host phase, a two-sublattice (hosts)a(X,VA)c solution such as BCC_A2.
-    solute
-        Interstitial element, such as "C".
-    temperatures
-        Kelvin (Celsius with ``celsius=True``): a sequence, or "START:STOP:STEP" with STOP included.
-    exclude
-        Phases not allowed to appear (for example GRAPHITE for the metastable Fe-Fe3C diagram).
-    fix
-        u-fractions (mole fraction on an interstitial-free basis) of other elements of the host, e.g.
-        ``{"CR": 0.02}``; the balance element takes the rest.
-    pressure
-        Pa.
-    balance
-        The host's balance element; needed only when the host's substitutional sublattice holds several
-        elements not given in `fix`.
-    celsius
-        Temperatures are given in degrees Celsius (results stay in K, with a Celsius coordinate).
-
-    Returns
-    -------
-    xarray.Dataset
-        Dims ``T``; variables X (mole fraction), W (mass fraction), PPM (ppm by mass), Y (site fraction of the
-        solute on its sublattice), partner, converged, reason, MU (J/mol); partner changes in
-        ``partner_change_T`` along ``change``. A temperature where the host is not stable holds NaN and a
-        reason, never a number.
-    """
-    from solubility.calc.inputs import prepare
-    from solubility.results.dataset import build_dataset, parse_temperatures
-
-    T = parse_temperatures(temperatures, celsius=celsius)
-    job = prepare(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
-    line = solvus_line(job.system, job.host, job.candidates, T)
-    return build_dataset(line, job)
+                      np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles)

@@ -1,38 +1,56 @@
-"""Validate a solvus request and build (or fetch from the cache) the compiled system it needs.
+"""The one validator of user input, shared by the API, the command line and job files.
 
 Everything the user gives is checked here, before any equilibrium work, with one-line errors that name the bad
-value and what is accepted.
+value and what is accepted. Module-level imports are light (numpy): job files are checked without pycalphad.
 """
 
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
+from solubility.constants import ZERO_CELSIUS
 from solubility.errors import InputError
 
-__all__ = ["SolvusJob", "check_fix", "host_elements", "host_model", "prepare"]
+__all__ = [
+    "MAX_TEMPERATURES",
+    "CheckedRequest",
+    "check_fix",
+    "check_parameters",
+    "check_pressure",
+    "check_request",
+    "host_elements",
+    "parse_temperatures",
+]
+
+#: most temperatures in one request unless the caller lifts the limit (a line of 20,000 points takes minutes;
+#: a mistyped step such as 1:2000:0.0001 should be refused, not started)
+MAX_TEMPERATURES = 20_000
+_RANGE = re.compile(r"^\s*([^:]+):([^:]+):([^:]+)\s*$")
+
 
 @dataclass(frozen=True)
-class SolvusJob:
-    """A validated solvus request with its compiled system."""
+class CheckedRequest:
+    """A host request whose every value was checked against its database (nothing compiled yet)."""
 
     database: object  # LoadedDatabase
     phase: str
     solute: str
     balance: str
-    fix: tuple[tuple[str, float], ...]
+    fix: tuple[tuple[str, float], ...]  # (element, u-fraction), sorted
     exclude: tuple[str, ...]
-    pressure: float
-    candidates: tuple[str, ...]
-    system: object  # ThermoSystem
-    host: object  # HostModel
+    pressure: float  # Pa
+    parameters: tuple[tuple[str, float], ...]  # (free parameter name, value), sorted
+    elements: tuple[str, ...]  # sorted
+    candidates: tuple[str, ...]  # phases that may appear, the host included, sorted
 
 
 def check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
+    """u-fractions as {ELEMENT: u}: each in (0, 1), each element once, summing to less than 1."""
     if fix is None:
         return {}
     if not isinstance(fix, Mapping):
@@ -55,7 +73,8 @@ def check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
     return out
 
 
-def _check_pressure(pressure: float) -> float:
+def check_pressure(pressure: float) -> float:
+    """`pressure` as a float, Pa; refused unless finite and > 0."""
     try:
         p = float(pressure)
     except (TypeError, ValueError):
@@ -63,6 +82,29 @@ def _check_pressure(pressure: float) -> float:
     if not math.isfinite(p) or p <= 0:
         raise InputError(f"pressure {pressure!r} must be a finite number of Pa > 0")
     return p
+
+
+def check_parameters(parameters: Mapping[str, float] | None) -> dict[str, float]:
+    """Free model parameters as {NAME: value}; names are database symbols (upper case), values finite."""
+    if parameters is None:
+        return {}
+    if not isinstance(parameters, Mapping):
+        raise InputError(f"parameters {parameters!r} is not a mapping of symbol name to value, e.g. {{'V1': -3.0}}")
+    out: dict[str, float] = {}
+    for name, val in parameters.items():
+        key = str(name).strip().upper()
+        if not key or not (key[0].isalpha() or key[0] == "_"):
+            raise InputError(f"parameter name {name!r} is not a symbol name")
+        try:
+            value = float(val)
+        except (TypeError, ValueError):
+            raise InputError(f"parameter {name}={val!r} is not a number") from None
+        if not math.isfinite(value):
+            raise InputError(f"parameter {name}={val!r} is not a finite number")
+        if key in out:
+            raise InputError(f"parameters name {key} twice")
+        out[key] = value
+    return out
 
 
 def _substitutional_elements(species, solute: str) -> tuple[int, list[str]]:
@@ -75,6 +117,7 @@ def _substitutional_elements(species, solute: str) -> tuple[int, list[str]]:
 
 
 def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: str | None) -> str:
+    """The host's balance element, after checking that `phase` is (hosts)a(`solute`,VA)c and `fix` fits it."""
     from solubility.databases.reader import check_elements
 
     _, species = ldb.sublattices(phase)
@@ -110,10 +153,10 @@ def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: 
     return rest[0]
 
 
-def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
-            fix: Mapping[str, float] | None = None, pressure: float = 101325.0,
-            balance: str | None = None) -> SolvusJob:
-    """Check a solvus request against its database and build the compiled system.
+def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
+                  fix: Mapping[str, float] | None = None, pressure: float = 101325.0,
+                  balance: str | None = None, parameters: Mapping[str, float] | None = None) -> CheckedRequest:
+    """Check a host request against its database: phase, solute, excluded phases, fix, pressure, balance.
 
     Raises
     ------
@@ -121,7 +164,7 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
         Any bad value, named in a one-line message.
     """
     from solubility.databases.reader import check_elements, check_phases, load_database
-    from solubility.thermo.system import filter_candidate_phases, get_system
+    from solubility.thermo.system import filter_candidate_phases
 
     ldb = load_database(database)
     if not isinstance(phase, str) or not phase.strip():
@@ -144,7 +187,8 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     check_elements(ldb, list(fixed))
     if solute in fixed:
         raise InputError(f"solute {solute} cannot also be fixed")
-    p = _check_pressure(pressure)
+    p = check_pressure(pressure)
+    params = check_parameters(parameters)
     bal = host_elements(ldb, phase, solute, fixed, balance)
     elements = sorted({bal, solute, *fixed})
     candidates = [ph for ph in filter_candidate_phases(ldb.db, elements) if ph not in excluded]
@@ -153,53 +197,85 @@ def prepare(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
     if len(candidates) < 2:
         raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
                          f"{', '.join(excluded) or 'nothing'} is excluded")
-    key = ldb.sha256 or f"memory:{id(ldb.db)}"
-    system = get_system(ldb.db, key, elements, candidates, p)
-    host = host_model(system, phase, solute, fixed, bal)
-    return SolvusJob(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
-                     tuple(candidates), system, host)
+    return CheckedRequest(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
+                          tuple(sorted(params.items())), tuple(elements), tuple(candidates))
 
 
-def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str):
-    """The host's constitution as a function of ln(y_solute): a `solubility.calc.boundary.HostModel`.
+# ---------------------------------------------------------------------- temperatures
+def _number(text: str, what: str) -> float:
+    try:
+        value = float(text)
+    except (TypeError, ValueError):
+        raise InputError(f"temperature {what} {text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise InputError(f"temperature {what} {text!r} is not a finite number")
+    return value
 
-    The interstitial sublattice is the one holding VA and the solute (nothing else may be on it among the
-    system's elements). Every other sublattice is fixed: one constituent at site fraction 1, or the
-    substitutional elements at their u-fractions (the balance takes 1 - sum(fix)), which for a single
-    substitutional sublattice are exactly its site fractions.
 
-    Raises
-    ------
-    InputError
-        The phase is not of the form (hosts)a(X,VA)c over the chosen elements.
+def _range(start: float, stop: float, step: float, spec: str, max_count: int | None) -> np.ndarray:
+    if step <= 0:
+        raise InputError(f"temperatures {spec!r}: STEP must be > 0")
+    if stop < start:
+        raise InputError(f"temperatures {spec!r}: STOP is below START; give START:STOP:STEP with START <= STOP")
+    n = math.floor((stop - start) / step + 1e-9) + 1
+    _check_count(n, spec, max_count)
+    return start + step * np.arange(n)
+
+
+def _check_count(n: int, spec, max_count: int | None) -> None:
+    if max_count is not None and n > max_count:
+        raise InputError(f"temperatures {str(spec)[:60]!r} give {n} points; at most {max_count} are accepted "
+                         "unless the limit is lifted (max_temperatures=None in the API)")
+
+
+def parse_temperatures(spec, *, celsius: bool = False, max_count: int | None = MAX_TEMPERATURES) -> np.ndarray:
+    """Temperatures in K from a spec.
+
+    Parameters
+    ----------
+    spec
+        "START:STOP:STEP" (STOP included when it lies on the grid), a comma-separated string, a number, or a
+        sequence of numbers.
+    celsius
+        The numbers are degrees Celsius.
+    max_count
+        Most temperatures accepted (`MAX_TEMPERATURES` by default); None lifts the limit.
+
+    Returns
+    -------
+    numpy.ndarray
+        1-D, K, in the order given; every value > 0 K.
     """
-    from solubility.calc.boundary import HostModel
-
-    pf = system.phases[phase]
-    groups = [[int(j) for j in np.flatnonzero(pf.sublattice_of == k)] for k in range(pf.n_sublattices)]
-    names = [[pf.species[j] for j in g] for g in groups]
-    inter = [k for k, sp in enumerate(names) if "VA" in sp and solute in sp]
-    if len(inter) != 1:
-        raise InputError(f"phase {phase} has no interstitial sublattice holding {solute} and VA" if not inter
-                         else f"phase {phase} holds {solute} on {len(inter)} sublattices; one is supported")
-    k_int = inter[0]
-    extra = [n for n in names[k_int] if n not in (solute, "VA")]
-    if extra:
-        raise InputError(f"the interstitial sublattice of {phase} also holds {', '.join(extra)}; only {solute} "
-                         "and VA may share it among the chosen elements")
-    u = {**fix, balance: 1.0 - sum(fix.values())}
-    base = np.zeros(pf.ny)
-    a = 0.0
-    for k, (group, sp) in enumerate(zip(groups, names, strict=True)):
-        if k == k_int:
-            continue
-        missing = [n for n in sp if n not in u and len(sp) > 1]
-        if missing:
-            raise InputError(f"sublattice {k} of {phase} holds {', '.join(sp)}; give the contents of "
-                             f"{', '.join(missing)} with fix, or leave those elements out")
-        for j, n in zip(group, sp, strict=True):
-            base[j] = 1.0 if len(sp) == 1 else u[n]
-        a += pf.site_ratios[k]
-    solute_index = groups[k_int][names[k_int].index(solute)]
-    vacancy_index = groups[k_int][names[k_int].index("VA")]
-    return HostModel(phase, solute, base, solute_index, vacancy_index, a, pf.site_ratios[k_int])
+    if isinstance(spec, str):
+        m = _RANGE.match(spec)
+        if m:
+            start, stop, step = (_number(t, w) for t, w in zip(m.groups(), ("START", "STOP", "STEP"), strict=True))
+            values = _range(start, stop, step, spec, max_count)
+        elif ":" in spec:
+            raise InputError(f"temperatures {spec!r} are not START:STOP:STEP or a comma-separated list")
+        else:
+            parts = [p for p in spec.replace(",", " ").split() if p]
+            if not parts:
+                raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
+            values = np.array([_number(p, "value") for p in parts])
+    else:
+        try:
+            values = np.atleast_1d(np.asarray(spec, dtype=float))
+        except (TypeError, ValueError):
+            raise InputError(f"temperatures {spec!r} are not numbers") from None
+        if values.ndim != 1:
+            raise InputError(f"temperatures must be one-dimensional, got shape {values.shape}")
+        if values.size == 0:
+            raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
+        if not np.all(np.isfinite(values)):
+            raise InputError(f"temperatures {spec!r} hold a value that is not a finite number")
+    _check_count(values.size, spec, max_count)
+    if celsius:
+        values = values + ZERO_CELSIUS
+    if np.any(values <= 0):
+        bad = float(values[values <= 0][0]) - (ZERO_CELSIUS if celsius else 0.0)
+        unit = "C" if celsius else "K"
+        raise InputError(f"temperature {bad:g} {unit} is at or below absolute zero; temperatures must be > 0 K")
+    if np.unique(values).size != values.size:
+        raise InputError("temperatures repeat a value; give each temperature once")
+    return values

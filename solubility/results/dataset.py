@@ -1,4 +1,4 @@
-"""Results: temperature specs, the solvus Dataset schema, unit conversion and CSV / NetCDF / JSON export.
+"""Results: the solvus Dataset schema, unit conversion and CSV / NetCDF / JSON export.
 
 Dataset schema (dims ``T`` and, for chemical potentials, ``component``; ``change`` for partner changes):
 
@@ -25,13 +25,13 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
 
-from solubility.errors import InputError
+from solubility.calc.inputs import parse_temperatures  # re-exported: the parser lives with the validator
+from solubility.constants import ZERO_CELSIUS
 
 __all__ = [
     "CAUTION",
@@ -47,82 +47,6 @@ CAUTION = (
     "Results are only as good as the thermodynamic database; verify them against measurements before use. "
     "Applicable codes and qualified engineering practice take precedence."
 )
-ZERO_CELSIUS = 273.15
-MAX_TEMPERATURES = 1_000_000
-_RANGE = re.compile(r"^\s*([^:]+):([^:]+):([^:]+)\s*$")
-
-
-def _number(text: str, what: str) -> float:
-    try:
-        value = float(text)
-    except (TypeError, ValueError):
-        raise InputError(f"temperature {what} {text!r} is not a number") from None
-    if not math.isfinite(value):
-        raise InputError(f"temperature {what} {text!r} is not a finite number")
-    return value
-
-
-def _range(start: float, stop: float, step: float, spec: str) -> np.ndarray:
-    if step <= 0:
-        raise InputError(f"temperatures {spec!r}: STEP must be > 0")
-    if stop < start:
-        raise InputError(f"temperatures {spec!r}: STOP is below START; give START:STOP:STEP with START <= STOP")
-    n = math.floor((stop - start) / step + 1e-9) + 1
-    if n > MAX_TEMPERATURES:
-        raise InputError(f"temperatures {spec!r} give {n} points; at most {MAX_TEMPERATURES} are accepted")
-    return start + step * np.arange(n)
-
-
-def parse_temperatures(spec, *, celsius: bool = False) -> np.ndarray:
-    """Temperatures in K from a spec.
-
-    Parameters
-    ----------
-    spec
-        "START:STOP:STEP" (STOP included when it lies on the grid), a comma-separated string, a number, or a
-        sequence of numbers.
-    celsius
-        The numbers are degrees Celsius.
-
-    Returns
-    -------
-    numpy.ndarray
-        1-D, K, in the order given; every value > 0 K.
-    """
-    if isinstance(spec, str):
-        m = _RANGE.match(spec)
-        if m:
-            start, stop, step = (_number(t, w) for t, w in zip(m.groups(), ("START", "STOP", "STEP"), strict=True))
-            values = _range(start, stop, step, spec)
-        elif ":" in spec:
-            raise InputError(f"temperatures {spec!r} are not START:STOP:STEP or a comma-separated list")
-        else:
-            parts = [p for p in spec.replace(",", " ").split() if p]
-            if not parts:
-                raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
-            values = np.array([_number(p, "value") for p in parts])
-    else:
-        try:
-            values = np.atleast_1d(np.asarray(spec, dtype=float))
-        except (TypeError, ValueError):
-            raise InputError(f"temperatures {spec!r} are not numbers") from None
-        if values.ndim != 1:
-            raise InputError(f"temperatures must be one-dimensional, got shape {values.shape}")
-        if values.size == 0:
-            raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
-        if not np.all(np.isfinite(values)):
-            raise InputError(f"temperatures {spec!r} hold a value that is not a finite number")
-    if celsius:
-        values = values + ZERO_CELSIUS
-    if np.any(values <= 0):
-        bad = float(values[values <= 0][0]) - (ZERO_CELSIUS if celsius else 0.0)
-        unit = "C" if celsius else "K"
-        raise InputError(f"temperature {bad:g} {unit} is at or below absolute zero; temperatures must be > 0 K")
-    if np.unique(values).size != values.size:
-        raise InputError("temperatures repeat a value; give each temperature once")
-    return values
-
-
 def _versions() -> dict[str, str]:
     import numpy
     import pycalphad
@@ -155,7 +79,7 @@ def _composition(line, s: float) -> tuple[float, float, float]:
 
 
 def build_dataset(line, job):
-    """The solvus Dataset from a `solubility.calc.boundary.SolvusLine` and its `solubility.calc.inputs.SolvusJob`."""
+    """The solvus Dataset from a `solubility.calc.boundary.SolvusLine` and its `solubility.calc.host.HostRequest`."""
     import xarray as xr
 
     pts = line.points

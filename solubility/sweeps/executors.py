@@ -34,7 +34,7 @@ Item = tuple[int, Case]
 def run_case(case: Case) -> CaseOutcome:
     """Compute one case with `solubility.solvus`; any exception becomes a failed outcome with its message."""
     try:
-        from solubility.calc.boundary import solvus
+        from solubility.api import solvus
 
         ds = solvus(
             case.database,

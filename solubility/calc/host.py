@@ -1,0 +1,287 @@
+"""The host layer: a validated host request and the two primitives every calculation on it is built from.
+
+A host is a phase (hosts)a(X,VA)c held at fixed contents of its substitutional elements (u-fractions), whose
+only free variable is s = ln(y_X), the log of the solute's site fraction on the interstitial sublattice.
+
+* `prepare_host` validates a request (`solubility.calc.inputs`) and binds the compiled system it needs (from the
+  cache; pressure and free parameter values are given at evaluation time, never compiled in).
+* `host_potentials` gives the chemical potentials of the elements in the host at ln(y) = s.
+* `driving_forces` gives every other candidate phase's driving force against given potentials, with its optimal
+  constitution.
+
+The solvus (`solubility.calc.boundary`) is built on these; so are uptake at fixed activity and fitting.
+Conventions: K, Pa, J/mol; driving forces in J per mole of atoms, > 0 where the phase is more stable than the
+state that set the potentials.
+"""
+
+from __future__ import annotations
+
+import math
+import types
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from solubility.errors import InputError
+from solubility.thermo.phases import DrivingForce
+
+__all__ = [
+    "DF_TOL",
+    "REFINE_MARGIN",
+    "HostModel",
+    "HostRequest",
+    "driving_forces",
+    "host_model",
+    "host_potentials",
+    "prepare_host",
+]
+
+#: a driving force within this of zero (J per mole of atoms) counts as zero (double precision noise of
+#: Gibbs energies of order 1e5 J/mol is about 1e-7 J/mol)
+DF_TOL = 1e-4
+#: phases whose sampled driving force is below -REFINE_MARGIN (J/mol of atoms) are not refined. The sample's
+#: shortfall (refined minus sampled driving force) is of order 10 J/mol for the smooth CALPHAD functions; a
+#: caller that keeps its margins (the solvus engine) widens a phase's margin to 20 times the largest shortfall
+#: seen for that phase
+REFINE_MARGIN = 1000.0
+
+
+@dataclass(frozen=True)
+class HostModel:
+    """The host phase's constitution as a function of one number, s = ln(y_solute).
+
+    Attributes
+    ----------
+    phase
+        Host phase name.
+    solute
+        Interstitial solute element.
+    base_y
+        Site fractions with the solute's and VA's entries still to be set (substitutional ones fixed).
+    solute_index, vacancy_index
+        Indices of the solute and of VA among the host's site-fraction variables.
+    a, c
+        Substitutional and interstitial site ratios (moles of sites per formula unit).
+    """
+
+    phase: str
+    solute: str
+    base_y: np.ndarray
+    solute_index: int
+    vacancy_index: int
+    a: float
+    c: float
+
+    def y(self, s: float) -> np.ndarray:
+        """Site fractions for ln(y_solute) = s (s <= 0)."""
+        y = self.base_y.copy()
+        y[self.solute_index] = math.exp(s)
+        y[self.vacancy_index] = -math.expm1(s)
+        return y
+
+
+@dataclass(frozen=True)
+class HostRequest:
+    """A validated host request with its bound compiled system.
+
+    Attributes
+    ----------
+    database
+        The `solubility.databases.reader.LoadedDatabase`.
+    phase, solute, balance
+        Host phase, interstitial solute and the substitutional balance element.
+    fix
+        ((element, u-fraction), ...) of the other substitutional elements, sorted.
+    exclude
+        Phases not allowed to appear.
+    pressure
+        Pa.
+    parameters
+        Free model parameter name -> value (read-only).
+    candidates
+        Phases that may appear, the host included, sorted.
+    system
+        The `solubility.thermo.system.BoundSystem` holding every candidate at `pressure` and `parameters`.
+    host
+        The host's constitution (`HostModel`).
+    """
+
+    database: object
+    phase: str
+    solute: str
+    balance: str
+    fix: tuple[tuple[str, float], ...]
+    exclude: tuple[str, ...]
+    pressure: float
+    parameters: Mapping[str, float]
+    candidates: tuple[str, ...]
+    system: object
+    host: HostModel
+
+    @property
+    def others(self) -> tuple[str, ...]:
+        """Every candidate except the host."""
+        return tuple(p for p in self.candidates if p != self.phase)
+
+
+def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
+                 fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
+                 parameters: Mapping[str, float] | None = None) -> HostRequest:
+    """Validate a host request and bind the compiled system it needs.
+
+    Parameters
+    ----------
+    database
+        Path to a TDB file, the name of a bundled database, or a pycalphad Database.
+    phase
+        Host phase, a two-sublattice (hosts)a(X,VA)c solution such as BCC_A2.
+    solute
+        Interstitial element, such as "C".
+    exclude
+        Phases not allowed to appear.
+    fix
+        u-fractions of other substitutional elements of the host, e.g. ``{"CR": 0.02}``.
+    pressure
+        Pa.
+    balance
+        The host's balance element; needed only when several substitutional elements are not in `fix`.
+    parameters
+        Values of database symbols left free at compile time (name -> value), e.g. a parameter being fitted.
+        A new value does not compile anything.
+
+    Raises
+    ------
+    InputError, DatabaseError
+        Any bad value, named in a one-line message.
+    """
+    from solubility.calc.inputs import check_request
+    from solubility.thermo.system import compiled_system
+
+    chk = check_request(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
+                        parameters=parameters)
+    ldb = chk.database
+    key = None if ldb.sha256 is None else f"sha256:{ldb.sha256}"
+    compiled = compiled_system(ldb.db, chk.elements, chk.candidates, [n for n, _ in chk.parameters], key=key)
+    system = compiled.bind(chk.pressure, dict(chk.parameters))
+    host = host_model(system, chk.phase, chk.solute, dict(chk.fix), chk.balance)
+    return HostRequest(ldb, chk.phase, chk.solute, chk.balance, chk.fix, chk.exclude, chk.pressure,
+                       types.MappingProxyType(dict(chk.parameters)), chk.candidates, system, host)
+
+
+def host_potentials(req: HostRequest, s: float, T: float) -> tuple[np.ndarray, float]:
+    """Chemical potentials of the elements in the host at ln(y_solute) = s and temperature T (K).
+
+    Returns
+    -------
+    mu, residual
+        J/mol in ``req.system.elements`` order, from the host's own tangent plane; and the relative residual of
+        that solve (above about 1e-9 the host's constitution is not fixed by its composition). NaN potentials and
+        residual where the Gibbs energy is not a finite number.
+    """
+    return req.system.chemical_potentials(req.host.phase, req.host.y(s), T)
+
+
+def driving_forces(req: HostRequest, mu: np.ndarray, T: float, *,
+                   hints: Mapping[str, np.ndarray] | None = None,
+                   phases: Sequence[str] | None = None) -> dict[str, DrivingForce]:
+    """Driving force of every candidate other than the host against the potentials `mu` at T.
+
+    Parameters
+    ----------
+    req
+        The host request.
+    mu
+        Chemical potentials, J/mol, ``req.system.elements`` order.
+    T
+        K.
+    hints
+        Phase -> site fractions to start its optimisation from (its optimum at a nearby state).
+    phases
+        The phases to evaluate (default: every candidate except the host).
+
+    Returns
+    -------
+    dict of str to `solubility.thermo.phases.DrivingForce`
+        J per mole of atoms, > 0 where the phase is more stable, with the optimal constitution. A phase whose
+        sampled driving force is below -`REFINE_MARGIN` is reported at its best sample (a lower bound).
+    """
+    names = req.others if phases is None else tuple(phases)
+    return refine(req.system, names, mu, T, hints, dict.fromkeys(names, REFINE_MARGIN))
+
+
+def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mapping[str, np.ndarray] | None,
+           margins: dict[str, float], quick: bool = False) -> dict[str, DrivingForce]:
+    """`driving_forces` with the caller's margins (widened in place) and a quick mode.
+
+    Each phase is first evaluated on its fixed constitution sample (a lower bound of its driving force). A phase
+    whose best sample lies below minus its margin is taken as it is. Any other is refined: from its hint if it
+    has one, and from its best sample where no hint is given or the sample beats the hint's optimum. With
+    `quick`, when a sample already has a positive driving force (so the host is unstable there whatever
+    refinement finds) the samples are returned unrefined.
+    """
+    def sampled(phase: str, value: float, y: np.ndarray) -> DrivingForce:
+        n = system.phases[phase].moles @ y
+        return DrivingForce(phase, value, y, n / n.sum(), True)
+
+    hints = hints or {}
+    screened = system.screen(mu, T, phases)
+    if quick and max(v for v, _ in screened.values()) > 0:
+        return {phase: sampled(phase, value, y) for phase, (value, y) in screened.items()}
+    out = {}
+    for phase, (value, y_best) in screened.items():
+        if value < -margins[phase]:
+            out[phase] = sampled(phase, value, y_best)
+            continue
+        hint = hints.get(phase)
+        best = system.driving_force(phase, mu, T, hint if hint is not None else y_best)
+        if hint is not None and value > best.value + DF_TOL:
+            alt = system.driving_force(phase, mu, T, y_best)
+            if alt.value > best.value:
+                best = alt
+        margins[phase] = max(margins[phase], 20.0 * (best.value - value))
+        out[phase] = best
+    return out
+
+
+def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balance: str) -> HostModel:
+    """The host's constitution as a function of ln(y_solute).
+
+    The interstitial sublattice is the one holding VA and the solute (nothing else may be on it among the
+    system's elements). Every other sublattice is fixed: one constituent at site fraction 1, or the
+    substitutional elements at their u-fractions (the balance takes 1 - sum(fix)), which for a single
+    substitutional sublattice are exactly its site fractions.
+
+    Raises
+    ------
+    InputError
+        The phase is not of the form (hosts)a(X,VA)c over the chosen elements.
+    """
+    pf = system.phases[phase]
+    groups = [[int(j) for j in np.flatnonzero(pf.sublattice_of == k)] for k in range(pf.n_sublattices)]
+    names = [[pf.species[j] for j in g] for g in groups]
+    inter = [k for k, sp in enumerate(names) if "VA" in sp and solute in sp]
+    if len(inter) != 1:
+        raise InputError(f"phase {phase} has no interstitial sublattice holding {solute} and VA" if not inter
+                         else f"phase {phase} holds {solute} on {len(inter)} sublattices; one is supported")
+    k_int = inter[0]
+    extra = [n for n in names[k_int] if n not in (solute, "VA")]
+    if extra:
+        raise InputError(f"the interstitial sublattice of {phase} also holds {', '.join(extra)}; only {solute} "
+                         "and VA may share it among the chosen elements")
+    u = {**fix, balance: 1.0 - sum(fix.values())}
+    base = np.zeros(pf.ny)
+    a = 0.0
+    for k, (group, sp) in enumerate(zip(groups, names, strict=True)):
+        if k == k_int:
+            continue
+        missing = [n for n in sp if n not in u and len(sp) > 1]
+        if missing:
+            raise InputError(f"sublattice {k} of {phase} holds {', '.join(sp)}; give the contents of "
+                             f"{', '.join(missing)} with fix, or leave those elements out")
+        for j, n in zip(group, sp, strict=True):
+            base[j] = 1.0 if len(sp) == 1 else u[n]
+        a += pf.site_ratios[k]
+    solute_index = groups[k_int][names[k_int].index(solute)]
+    vacancy_index = groups[k_int][names[k_int].index("VA")]
+    return HostModel(phase, solute, base, solute_index, vacancy_index, a, pf.site_ratios[k_int])
