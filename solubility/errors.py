@@ -49,3 +49,8 @@ class OutputError(SolubilityError, OSError):
 
 class ConvergenceError(SolubilityError, RuntimeError):
     """A calculation did not converge where a result was required (points in a line are flagged instead)."""
+
+
+class DatabaseWarning(UserWarning):
+    """What a database leaves out or the tool had to decide about it (missing end-members, undefined functions,
+    ordered descriptions pycalphad cannot build); the same lines go into the results' attrs."""

@@ -28,6 +28,7 @@ PYCALPHAD_DBS = os.path.dirname(pycalphad_test_databases.__file__)
 #: +30 kJ/mol between C and VA, so its miscibility gap at 800 K has its ends at y = 0.01212 and 0.98788, and a
 #: pure-C phase at +3 kJ/mol, which would limit the host at y = 0.0203 if the gap were ignored.
 INVENTED_GAP_TDB = """
+TYPE_DEFINITION % SEQ * !
 ELEMENT VA VACUUM 0 0 0 !
 ELEMENT FE BCC_A2 55.845 4489 27.28 !
 ELEMENT C GRAPHITE 12.011 1054 5.74 !
@@ -73,7 +74,7 @@ def test_invented_gap_partner_is_the_hosts_second_composition_set():
 def test_cost507_austenite_with_carbon_is_refused_naming_the_parameter():
     db = _pycalphad_db("COST507.tdb")
     with pytest.raises(InputError, match=r"G\(FCC_A1,FE:C;0\)"):
-        solubility.solvus(db, "FCC_A1", "C", [1273.15])
+        solubility.solvus(db, "FCC_A1", "C", [1273.15], balance="FE")
 
 
 @pytest.mark.parametrize(("T", "partner"), [(800.0, "SPINEL_B"), (1000.0, "HALITE")])
@@ -85,7 +86,7 @@ def test_oxygen_in_ferrite_against_charged_oxides(T, partner):
     ref = _host_end(db, ["FE", "O", "VA"], ["BCC_A2", partner], T, "O", 0.3, "BCC_A2")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)
-        ds = solubility.solvus(db, "BCC_A2", "O", [T], exclude=["GAS"])
+        ds = solubility.solvus(db, "BCC_A2", "O", [T], exclude=["GAS"], balance="FE")
     assert ds.status.values[0] == "ok"
     assert ds.partner.values[0] == partner
     assert float(ds.X.values[0]) == pytest.approx(ref, rel=1e-6)
