@@ -69,7 +69,7 @@ class PhaseFunctions:
             if self.charge is not None:  # keep electroneutrality: directions in the null space of q . dy = 0
                 c = self.charge @ Z
                 if np.any(c != 0):
-                    _, sv, vt = np.linalg.svd(c[None, :])
+                    vt = np.linalg.svd(c[None, :])[2]
                     Z = Z @ vt[1:].T
             self._bases[pivots] = Z
         return Z
