@@ -107,6 +107,12 @@ def choose_phases(db, elements: Iterable[str], host: str, excluded: Iterable[str
     warnings: list[str] = []
     families = order_families(db)
     allowed = [p for p in db.phases if p not in excluded]
+    ionic = sorted(p for p in allowed if db.phases[p].model_hints.get("ionic_liquid_2SL"))
+    if ionic:  # site ratios that depend on the constitution: not handled by the compiled sample and optimiser
+        allowed = [p for p in allowed if p not in ionic]
+        ionic = [p for p in ionic if filter_phases(db, species, [p])]
+        if ionic:
+            warnings.append(f"{', '.join(ionic)} (two-sublattice ionic liquid) left out: not handled")
     try:
         kept = set(filter_phases(db, species, allowed))
     except ValueError:  # an ordered phase that is a superset of its disordered phase: judge phase by phase
