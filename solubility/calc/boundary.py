@@ -367,6 +367,7 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
     order = np.argsort(T, kind="stable")
     points: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
+    ends: list[tuple[Mapping, Mapping]] = []  # phase constitutions of the points either side of each change
     prev: BoundaryPoint | None = None
     before: BoundaryPoint | None = None
     for k in order:
@@ -383,6 +384,7 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
             extra = [p for p in point.partners if p not in prev.partners]
             if extra:
                 changes.append(engine.locate_change(prev, point))
+                ends.append((prev.phase_y, point.phase_y))
         points[k] = point
         if point.valid:
             prev, before = point, prev
@@ -391,8 +393,8 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
     view = engine.system
     if hasattr(view, "label"):
         points = [_relabel(view, p) for p in points]
-        changes = [replace(c, below=_names(view, c.below, None), above=_names(view, c.above, None))
-                   for c in changes]
+        changes = [replace(c, below=_names(view, c.below, lo), above=_names(view, c.above, hi))
+                   for c, (lo, hi) in zip(changes, ends, strict=True)]
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
                       np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles)
 
