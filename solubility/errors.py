@@ -9,6 +9,7 @@ from __future__ import annotations
 
 __all__ = [
     "ConvergenceError",
+    "DatabaseWarning",
     "DatabaseError",
     "DatabaseNotFoundError",
     "InputError",
@@ -58,7 +59,12 @@ class SolubilityWarning(UserWarning):
     """Base class of every warning issued by `solubility` (filter them with this class)."""
 
 
-class UndefinedFunctionWarning(SolubilityWarning):
+class DatabaseWarning(SolubilityWarning):
+    """What a database leaves out or the tool had to decide about it (missing end-members, undefined functions,
+    ordered descriptions pycalphad cannot build); the same lines go into the results' attrs."""
+
+
+class UndefinedFunctionWarning(DatabaseWarning):
     """A database uses FUNCTIONs it never defines; pycalphad takes each as zero (the message names them)."""
 
 

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -35,6 +35,9 @@ Y_MAX = 1.0 - 1e-9
 #: a cold start looks for a single-phase field narrower than its scan spacing only where the least unstable scan
 #: point is within this many RT of stability (between scan points F(s) changes by a fraction of RT)
 NARROW_SEARCH = 0.5
+#: largest relative residual of the host's tangent-plane solve accepted (above it the host's constitution is not
+#: fixed by its composition and its chemical potentials are not defined)
+MU_RESIDUAL = 1e-9
 #: temperature tolerance for locating a change of partner, K
 T_TOL = 0.005
 #: ln(y) grid of the cold scan: one point a decade below y = 1e-6 (a single-phase field that narrow at such
@@ -81,6 +84,7 @@ class BoundaryPoint:
     reason: str = ""
     phase_y: Mapping[str, np.ndarray] = field(default_factory=dict)
     max_other_df: float = float("nan")
+    partner_x: np.ndarray | None = None  # mole fractions of the (first) partner, elements order
 
     @property
     def valid(self) -> bool:
@@ -121,17 +125,22 @@ class _Engine:
 
     def __init__(self, req: HostRequest) -> None:
         self.req = req
-        self.system = req.system
+        self.system = req.view if req.view is not None else req.system
         self.host = req.host
-        self.others = req.others
+        self.others = tuple(p for p in self.system.phases if p != req.host.phase)
         self.margin = dict.fromkeys(self.others, REFINE_MARGIN)
 
     # ---------------------------------------------------------------- primitives
     def mu(self, s: float, T: float) -> np.ndarray:
-        mu, _ = host_potentials(self.req, s, T)
+        mu, residual = host_potentials(self.req, s, T)
         if not np.all(np.isfinite(mu)):
             raise FloatingPointError(f"the Gibbs energy of {self.host.phase} is not a finite number at "
                                      f"y({self.host.solute}) = {math.exp(s):.6g}, T = {T:g} K")
+        if residual > MU_RESIDUAL:
+            raise ArithmeticError(f"the host's chemical potentials have a residual of {residual:.2g} "
+                                  f"(above {MU_RESIDUAL:g}) at y({self.host.solute}) = {math.exp(s):.6g}")
+        if hasattr(self.system, "set_host"):
+            self.system.set_host(self.host.y(s))
         return mu
 
     def df(self, phase: str, mu: np.ndarray, T: float, y0: np.ndarray | None):
@@ -358,6 +367,7 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
     order = np.argsort(T, kind="stable")
     points: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
+    ends: list[tuple[Mapping, Mapping]] = []  # phase constitutions of the points either side of each change
     prev: BoundaryPoint | None = None
     before: BoundaryPoint | None = None
     for k in order:
@@ -374,10 +384,37 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
             extra = [p for p in point.partners if p not in prev.partners]
             if extra:
                 changes.append(engine.locate_change(prev, point))
+                ends.append((prev.phase_y, point.phase_y))
         points[k] = point
         if point.valid:
             prev, before = point, prev
         elif point.status != "failed":
             prev = before = None  # the line is broken: start the next point from nothing
+    view = engine.system
+    if hasattr(view, "label"):
+        points = [_relabel(view, p) for p in points]
+        changes = [replace(c, below=_names(view, c.below, lo), above=_names(view, c.above, hi))
+                   for c, (lo, hi) in zip(changes, ends, strict=True)]
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
                       np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles)
+
+
+def _names(view, partners: Sequence[str], phase_y: Mapping[str, np.ndarray] | None) -> tuple[str, ...]:
+    out: list[str] = []
+    for p in partners:
+        name = view.label(p, None if phase_y is None else phase_y.get(p))
+        if name not in out:
+            out.append(name)
+    return tuple(out)
+
+
+def _relabel(view, point: BoundaryPoint) -> BoundaryPoint:
+    """The point with its partners under the names they are reported by, and the first partner's composition."""
+    if not point.partners:
+        return point
+    first = point.partners[0]
+    x = None
+    if first in point.phase_y:
+        n = view.phases[first].moles @ point.phase_y[first]
+        x = n / n.sum()
+    return replace(point, partners=_names(view, point.partners, point.phase_y), partner_x=x)

@@ -18,12 +18,13 @@ from __future__ import annotations
 
 import math
 import types
+import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
-from solubility.errors import InputError
+from solubility.errors import DatabaseWarning, InputError
 from solubility.thermo.phases import DrivingForce
 
 __all__ = [
@@ -118,6 +119,9 @@ class HostRequest:
     candidates: tuple[str, ...]
     system: object
     host: HostModel
+    family: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+    view: object = None  # `solubility.calc.partners.PartnerView`: the candidates as partners of this host
 
     @property
     def others(self) -> tuple[str, ...]:
@@ -156,6 +160,8 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
         Any bad value, named in a one-line message.
     """
     from solubility.calc.inputs import check_request
+    from solubility.calc.partners import PartnerView
+    from solubility.thermo.ordering import disordered_of, ordering_sublattices
     from solubility.thermo.system import compiled_system
 
     chk = check_request(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
@@ -165,8 +171,20 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
     compiled = compiled_system(ldb.db, chk.elements, chk.candidates, [n for n, _ in chk.parameters], key=key)
     system = compiled.bind(chk.pressure, dict(chk.parameters))
     host = host_model(system, chk.phase, chk.solute, dict(chk.fix), chk.balance)
+    notes = list(chk.notes)
+    undefined = {p: u for p, u in compiled.undefined.items() if p in chk.candidates}
+    if undefined:
+        notes.append("functions referenced but never defined (taken as zero by pycalphad): " + "; ".join(
+            f"{p} {', '.join(u)}" for p, u in sorted(undefined.items())))
+    for note in notes:
+        warnings.warn(note, DatabaseWarning, stacklevel=3)
+    view = PartnerView(system, chk.phase, chk.family,
+                       {p: ordering_sublattices(ldb.db, p, chk.elements) for p in chk.candidates
+                        if disordered_of(ldb.db, p)},
+                       {p: disordered_of(ldb.db, p) for p in chk.candidates if disordered_of(ldb.db, p)})
     return HostRequest(ldb, chk.phase, chk.solute, chk.balance, chk.fix, chk.exclude, chk.pressure,
-                       types.MappingProxyType(dict(chk.parameters)), chk.candidates, system, host)
+                       types.MappingProxyType(dict(chk.parameters)), chk.candidates, system, host,
+                       chk.family, tuple(notes), view)
 
 
 def host_potentials(req: HostRequest, s: float, T: float) -> tuple[np.ndarray, float]:
@@ -285,6 +303,14 @@ def host_model(system, phase: str, solute: str, fix: Mapping[str, float], balanc
         raise InputError(f"phase {phase} has no interstitial sublattice holding {solute} and VA" if not inter
                          else f"phase {phase} holds {solute} on {len(inter)} sublattices; one is supported")
     k_int = inter[0]
+    charged = sorted({n for sp in names for n in sp if any(ch in n for ch in "+-")})
+    mixed = [k for k, sp in enumerate(names) if k != k_int and len(sp) > 1]
+    if charged or len(mixed) > 1:
+        why = (f"holds charged constituents ({', '.join(charged)})" if charged
+               else f"has {len(mixed)} mixed substitutional sublattices")
+        raise InputError(f"host phase {phase} {why}; handled hosts are (hosts)a({solute},VA)c with one mixed "
+                         "substitutional sublattice and no ions, or the disordered part of an ordered phase "
+                         "(named by either name)")
     extra = [n for n in names[k_int] if n not in (solute, "VA")]
     if extra:
         raise InputError(f"the interstitial sublattice of {phase} also holds {', '.join(extra)}; only {solute} "

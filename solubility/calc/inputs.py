@@ -47,6 +47,8 @@ class CheckedRequest:
     parameters: tuple[tuple[str, float], ...]  # (free parameter name, value), sorted
     elements: tuple[str, ...]  # sorted
     candidates: tuple[str, ...]  # phases that may appear, the host included, sorted
+    family: tuple[str, ...] = ()  # ordered phases whose disordered state is the host's phase
+    notes: tuple[str, ...] = ()  # what the user must know about the database (also warned and put in attrs)
 
 
 def check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
@@ -164,6 +166,8 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
         Any bad value, named in a one-line message.
     """
     from solubility.databases.reader import check_elements, check_phases, load_database
+    from solubility.thermo.checks import MAX_LISTED, missing_endmembers
+    from solubility.thermo.ordering import choose_phases, disordered_of
     from solubility.thermo.system import filter_candidate_phases
 
     ldb = load_database(database)
@@ -189,16 +193,31 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
         raise InputError(f"solute {solute} cannot also be fixed")
     p = check_pressure(pressure)
     params = check_parameters(parameters)
+    named = phase
+    phase = disordered_of(ldb.db, phase) or phase  # an ordered name: its disordered state is the host
     bal = host_elements(ldb, phase, solute, fixed, balance)
     elements = sorted({bal, solute, *fixed})
-    candidates = [ph for ph in filter_candidate_phases(ldb.db, elements) if ph not in excluded]
-    if phase not in candidates:
-        raise InputError(f"host phase {phase} cannot form from {', '.join(elements)}")
+    choice = choose_phases(ldb.db, elements, phase, [p_ for p_ in excluded if p_ != named])
+    candidates = list(choice.candidates)
+    if phase not in filter_candidate_phases(ldb.db, elements, [phase]):
+        raise InputError(f"host phase {named} cannot form from {', '.join(elements)}")
+    missing = missing_endmembers(ldb.db, phase, elements)
+    if missing:
+        raise InputError(f"host phase {phase} has no {', '.join(missing)} in the database (pycalphad would take "
+                         "it as zero); add the parameter or choose another host")
     if len(candidates) < 2:
         raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
                          f"{', '.join(excluded) or 'nothing'} is excluded")
+    notes = list(choice.warnings)
+    gaps = {p_: missing_endmembers(ldb.db, p_, elements) for p_ in candidates if p_ != phase}
+    gaps = {p_: m for p_, m in gaps.items() if m}
+    if gaps:
+        notes.append("end-members missing (taken as zero by pycalphad) in candidate phases: " + "; ".join(
+            f"{p_} {', '.join(m[:MAX_LISTED])}" + (f" and {len(m) - MAX_LISTED} more" if len(m) > MAX_LISTED
+                                                    else "") for p_, m in sorted(gaps.items())))
     return CheckedRequest(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
-                          tuple(sorted(params.items())), tuple(elements), tuple(candidates))
+                          tuple(sorted(params.items())), tuple(elements), tuple(candidates),
+                          choice.host_family, tuple(notes))
 
 
 # ---------------------------------------------------------------------- temperatures

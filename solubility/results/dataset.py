@@ -113,6 +113,10 @@ def build_dataset(line, job):
         "reason": ("T", np.array([p.reason for p in pts], dtype=object),
                    {"units": "", "long_name": "why the point has no number"}),
         "MU": (("T", "component"), mu, {"units": "J/mol", "long_name": "chemical potential at the solvus"}),
+        "PARTNER_X": (("T", "component"), np.array([
+            p.partner_x if p.valid and getattr(p, "partner_x", None) is not None
+            else np.full(len(line.elements), np.nan) for p in pts]).reshape(len(pts), len(line.elements)),
+            {"units": "1", "long_name": "mole fractions of the (first) partner phase at the solvus"}),
         "DF_OTHER": ("T", np.array([p.max_other_df if p.valid else np.nan for p in pts]),
                      {"units": "J/mol", "long_name": "largest driving force of another candidate phase"}),
         "partner_change_T": ("change", np.array([c.T for c in line.changes], dtype=float),
@@ -149,6 +153,7 @@ def build_dataset(line, job):
         "pressure_Pa": float(job.pressure),
         **_versions(),
         "created": datetime.now(UTC).isoformat(timespec="seconds"),
+        "database_notes": " | ".join(getattr(job, "notes", ()) or ()),
         "caution": CAUTION,
     }
     from solubility.results.summary import add_summary

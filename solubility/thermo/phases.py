@@ -58,6 +58,7 @@ class PhaseFunctions:
     groups: tuple[np.ndarray, ...] = field(default=(), repr=False)  # variable indices of each sublattice
     tangent: np.ndarray | None = field(default=None, repr=False)  # constant part of the tangent-plane matrix
     _bases: dict = field(default_factory=dict, repr=False)  # pivot choice -> reduced basis
+    charge: np.ndarray | None = field(default=None, repr=False)  # (ny,) charge per formula unit of each variable
 
     def reduced_basis(self, y: np.ndarray) -> np.ndarray:
         """`solubility.thermo.optimise.reduced_basis` at `y`, cached by the choice of pivots."""
@@ -65,6 +66,11 @@ class PhaseFunctions:
         Z = self._bases.get(pivots)
         if Z is None:
             Z = reduced_basis(self.groups, y, self.ny)
+            if self.charge is not None:  # keep electroneutrality: directions in the null space of q . dy = 0
+                c = self.charge @ Z
+                if np.any(c != 0):
+                    vt = np.linalg.svd(c[None, :])[2]
+                    Z = Z @ vt[1:].T
             self._bases[pivots] = Z
         return Z
 
@@ -114,7 +120,11 @@ def phase_functions(record, model, elements: Sequence[str]) -> PhaseFunctions:
         for el, count in var.species.constituents.items():
             if el in elements:
                 moles[elements.index(el), j] += ratio * float(count)
+    charge = np.array([float(model.site_ratios[int(var.sublattice_index)]) * float(var.species.charge)
+                       for var in variables])
     samples = sample_constitutions(sublattice_of, ny)
+    if np.any(charge != 0):
+        samples = neutral_samples(samples, charge)
     sx = samples @ moles.T
     with np.errstate(invalid="ignore", divide="ignore"):
         sx = sx / sx.sum(axis=1, keepdims=True)
@@ -134,4 +144,22 @@ def phase_functions(record, model, elements: Sequence[str]) -> PhaseFunctions:
         sample_x=sx[keep],
         groups=tuple(np.flatnonzero(sublattice_of == k) for k in range(ns)),
         tangent=tangent,
+        charge=charge if np.any(charge != 0) else None,
     )
+
+
+def neutral_samples(samples: np.ndarray, charge: np.ndarray, cap: int = 4000) -> np.ndarray:
+    """Electrically neutral constitutions from a sample: the neutral ones, and for pairs of a positively and a
+    negatively charged sample the convex combination with zero charge (charge is linear in y, and a convex
+    combination keeps every sublattice's sum at 1). Seeded, so the same phase always gets the same sample."""
+    q = samples @ charge
+    tol = 1e-12 * max(1.0, float(np.abs(charge).max()))
+    zero, pos, neg = samples[np.abs(q) <= tol], np.flatnonzero(q > tol), np.flatnonzero(q < -tol)
+    if pos.size == 0 or neg.size == 0:
+        return zero
+    rng = np.random.default_rng(20261201)
+    n = min(cap, pos.size * neg.size)
+    i, j = rng.choice(pos, n), rng.choice(neg, n)
+    w = (-q[j] / (q[i] - q[j]))[:, None]
+    mixed = w * samples[i] + (1.0 - w) * samples[j]
+    return np.concatenate((zero, mixed))

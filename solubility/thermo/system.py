@@ -109,6 +109,8 @@ class CompiledSystem:
         from pycalphad.codegen.phase_record_factory import PhaseRecordFactory
         from pycalphad.core.utils import instantiate_models
 
+        from solubility.thermo.checks import undefined_functions
+
         comps = sorted({*elements, "VA"})
         names = sorted({str(p) for p in parameters})
         start = dict.fromkeys(names, 0.0)
@@ -131,6 +133,10 @@ class CompiledSystem:
         self.elements: tuple[str, ...] = tuple(self._prf.nonvacant_elements)
         self.molar_masses = np.asarray(self._prf.molar_masses, dtype=float)  # g/mol, elements order
         self._models = models
+        #: phase -> symbols its Gibbs energy uses that the database never defines (pycalphad takes them as zero)
+        self.undefined: dict[str, list[str]] = {
+            p: [u for u in us if u not in names] for p, us in undefined_functions(models).items()
+            if any(u not in names for u in us)}
         self.phases: dict[str, PhaseFunctions] = {}
         for name in phases:
             self.phases[name] = phase_functions(self._prf[name], models[name], self.elements)
