@@ -11,7 +11,8 @@ then refused by SymEngine as an unknown token; no code runs). No path to Python 
 constant subexpressions are evaluated exactly (pycalphad took 11 s on ``9**9**9`` here), and deep nesting
 reaches Python's recursion limits; the guards refuse both, and anything that looks like a Python call.
 
-Parsed Databases are cached in-process per (resolved path, sha256): parsing a TDB costs seconds.
+Parsed Databases are cached in-process per (resolved path, sha256), and on disk across runs by the file's
+sha256 (`solubility.databases.parse_cache`): parsing a TDB costs seconds.
 pycalphad is imported inside the functions that need it.
 """
 
@@ -251,7 +252,9 @@ def load_database(spec: str | os.PathLike | Database, *, max_bytes: int = MAX_FI
     if cached is not None:
         return cached
     text = _decode(data, label)
-    db, messages = _parse_text(text, label)
+    from solubility.databases.parse_cache import cached_parse  # parsed once, reused across runs
+
+    db, messages = cached_parse(digest, lambda: _parse_text(text, label))
     loaded = _make_loaded(db, label, path, digest, messages)
     with _CACHE_LOCK:
         _CACHE[key] = loaded
