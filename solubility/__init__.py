@@ -29,6 +29,8 @@ _EXPORTS = {
     "load_database": "databases.reader",
     "audit_database": "databases.reader",
     "bundled_databases": "databases.reader",
+    "reduce_database": "databases.reduce",
+    "write_tdb": "databases.reduce",
     "solvus": "calc.boundary",
     "sweep": "sweeps",
     "read_job": "sweeps",

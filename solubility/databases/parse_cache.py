@@ -142,7 +142,7 @@ def _read(key: str) -> Any | None:
     if not hmac.compare_digest(mac, str(meta.get("hmac_sha256", ""))):
         return None
     try:
-        return pickle.loads(data)  # noqa: S301 - authenticated above
+        return pickle.loads(data)
     except Exception:  # a pickle from an incompatible library build: reparse
         return None
 

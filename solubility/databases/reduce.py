@@ -19,6 +19,7 @@ text with `tdb_header` and `tdb_references`, can be given.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 from collections.abc import Iterable, Mapping
@@ -31,14 +32,14 @@ if TYPE_CHECKING:  # pragma: no cover
     from pycalphad import Database
 
 __all__ = [
-    "referenced_functions",
     "reduce_database",
     "reduce_tdb_file",
+    "referenced_functions",
     "tdb_database_info",
     "tdb_header",
     "tdb_parameter_references",
-    "tdb_text",
     "tdb_references",
+    "tdb_text",
     "undefined_functions",
     "with_references",
     "write_tdb",
@@ -103,7 +104,8 @@ def reduce_database(database: Any, elements: Iterable[str]) -> Database:
     Parameters
     ----------
     database
-        A pycalphad Database, a `LoadedDatabase`, a TDB path or a bundled name.
+        A pycalphad Database, a `LoadedDatabase`, a TDB path or a bundled name. Read from a file, the
+        parameters get the reference codes the file gives them (pycalphad's reader drops them).
     elements
         Element names (any case); each must be in the database.
 
@@ -122,7 +124,7 @@ def reduce_database(database: Any, elements: Iterable[str]) -> Database:
     from pycalphad import Database
     from pycalphad.io.database import Phase
 
-    db = _as_database(database)
+    db, source = _as_database(database)
     wanted = {str(e).strip().upper() for e in elements}
     if not wanted:
         raise InputError("no element given to reduce the database to; give at least one element")
@@ -168,6 +170,9 @@ def reduce_database(database: Any, elements: Iterable[str]) -> Database:
     out.symbols = {k: v for k, v in db.symbols.items() if k in kept_fn}
     out.references = dict(getattr(db, "references", {}) or {})
     out._parameters.insert_multiple(params)
+    if source is not None:  # pycalphad's reader drops the reference codes: take them from the file
+        with contextlib.suppress(OSError):
+            with_references(out, tdb_parameter_references(source.read_bytes().decode("utf-8", errors="replace")))
     return out
 
 
@@ -176,9 +181,9 @@ def _link_order_disorder(db: Any, phases: dict[str, Any]) -> None:
     for name in list(phases):
         hints = phases[name].model_hints
         ordered, disordered = hints.get("ordered_phase"), hints.get("disordered_phase")
-        if ordered == name and disordered is not None and disordered not in phases:
-            if disordered in db.phases:  # the disordered part cannot be formed: the ordered phase cannot either
-                del phases[name]
+        # the disordered part cannot be formed: the ordered phase cannot be built either
+        if ordered == name and disordered is not None and disordered not in phases and disordered in db.phases:
+            del phases[name]
     for name, ph in phases.items():
         hints = ph.model_hints
         if hints.get("disordered_phase") == name and hints.get("ordered_phase") not in phases:
@@ -191,18 +196,19 @@ def _link_order_disorder(db: Any, phases: dict[str, Any]) -> None:
                 hints.pop("disordered_phase", None)
 
 
-def _as_database(database: Any) -> Any:
+def _as_database(database: Any) -> tuple[Any, Path | None]:
+    """The pycalphad Database and the file it was read from (None for an in-memory Database)."""
     from pycalphad import Database
 
     if isinstance(database, Database):
-        return database
-    db = getattr(database, "db", None)  # a LoadedDatabase
-    if isinstance(db, Database):
-        return db
+        return database, None
     if isinstance(database, str | os.PathLike):
         from solubility.databases.reader import load_database
 
-        return load_database(database).db
+        database = load_database(database)
+    db = getattr(database, "db", None)  # a LoadedDatabase
+    if isinstance(db, Database):
+        return db, getattr(database, "path", None)
     raise InputError(f"database {database!r} is not a path, a bundled name or a pycalphad Database")
 
 
@@ -227,19 +233,29 @@ def tdb_database_info(text: str) -> str:
     return m.group(0).strip() if m else ""
 
 
-_REF_ENTRY = re.compile(r"^\s*(\S+)\s+'(.*?)'", re.S | re.M)
+#: an entry starts at the beginning of a line (at most 3 spaces in) with a code: year digits, then letters
+_REF_START = re.compile(r"^[ \t]{0,3}(\d\d[A-Za-z][A-Za-z0-9_-]*)[ \t]+", re.M)
 
 
 def tdb_references(text: str) -> dict[str, str]:
     """The entries of the LIST_OF_REFERENCES command of TDB text: code -> text (one line, spaces collapsed).
 
-    pycalphad's reader skips this command, so it is read here from the text. Entries have the form
-    ``CODE 'text over one or more lines'``; a heading line ``NUMBER SOURCE`` is skipped.
+    pycalphad's reader skips this command, so it is read here from the text. An entry starts on a line with a
+    code (two digits of the year, then letters: ``91DIN 'Dinsdale, ...``) and runs to the next entry; its outer
+    quotes are removed (quotes inside are kept). A heading line ``NUMBER SOURCE`` is skipped.
     """
     m = re.search(r"^\s*LIST_OF_REFERENCES\b(.*?)^\s*!", text, flags=re.S | re.M | re.I)
     if m is None:
         return {}
-    return {code.upper(): " ".join(body.split()) for code, body in _REF_ENTRY.findall(m.group(1))}
+    block = m.group(1)
+    starts = list(_REF_START.finditer(block))
+    out = {}
+    for i, st in enumerate(starts):
+        end = starts[i + 1].start() if i + 1 < len(starts) else len(block)
+        body = " ".join(block[st.end() : end].split())
+        body = body[1:] if body.startswith("'") else body
+        out[st.group(1).upper()] = body[:-1] if body.endswith("'") else body
+    return out
 
 
 _PARAM_CMD = re.compile(r"^\s*PARAMETER\s+(\w+)\s*\(\s*([^,&\s]+)(?:&[^,]*)?,([^;]*);\s*(\d+)\s*\)(.*?)!",
@@ -419,10 +435,9 @@ def _parameter_sort_key(p: Mapping[str, Any]) -> tuple:
 
 
 def _parameter_line(p: Mapping[str, Any], ref: str) -> str:
+    from pycalphad import variables as v
     from pycalphad.io.tdb import TCPrinter
     from symengine import And, Piecewise
-
-    from pycalphad import variables as v
 
     expr = p["parameter"]
     if not isinstance(expr, Piecewise):
@@ -481,11 +496,12 @@ def reduce_tdb_file(
     if loaded.path is None:  # pragma: no cover - load_database of a path always has one
         raise DatabaseError(f"database {source!r} has no file to read a header from")
     text = loaded.path.read_bytes().decode("utf-8", errors="replace")
-    reduced = with_references(reduce_database(loaded.db, elements), tdb_parameter_references(text))
+    reduced = reduce_database(loaded, elements)  # reference codes taken from the file
     header, refs = tdb_header(text), tdb_references(text)
     info = tdb_database_info(text)
     if info:  # kept as comment lines: the source's list of assessed systems and their authors
-        header = f"{header}\n$\n$ The source's DATABASE_INFO (its list of assessed systems, all elements):\n{_comment(info).rstrip()}"
+        title = "$ The source's DATABASE_INFO (its list of assessed systems, all elements):"
+        header = f"{header}\n$\n{title}\n{_comment(info).rstrip()}"
     for old, new in (replace or {}).items():
         header = header.replace(old, new)
         refs = {k: v.replace(old, new) for k, v in refs.items()}
