@@ -161,17 +161,18 @@ def _write_atomic(path: Path, data: bytes) -> None:
         raise
 
 
-def _write(key: str, value: Any) -> bool:
+def _write(key: str, value: Any) -> bytes | None:
+    """Store `value`; the pickled bytes, or None when nothing was stored."""
     folder = _folder(create=True)
     if folder is None:
-        return False
+        return None
     secret = _secret(folder, create=True)
     if secret is None:
-        return False
+        return None
     try:
         data = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
     except Exception:  # something in the Database cannot be pickled: no cache
-        return False
+        return None
     name = _entry_name(key)
     meta = {"key": key, "hmac_sha256": hmac.new(secret, data, hashlib.sha256).hexdigest()}
     try:
@@ -179,8 +180,8 @@ def _write(key: str, value: Any) -> bool:
         _write_atomic(folder / (name + _SUFFIX), data)
         _write_atomic(folder / (name + _SIDECAR), json.dumps(meta).encode())
     except OSError:
-        return False
-    return True
+        return None
+    return data
 
 
 def cached_parse(digest: str, parse: Callable[[], Any]) -> Any:
@@ -197,13 +198,22 @@ def cached_parse(digest: str, parse: Callable[[], Any]) -> Any:
     -------
     object
         The cached value, or a fresh `parse()` (then stored; a cache that cannot be written is skipped).
+        A value just stored is returned as read back from its pickle, the form every later run (and every
+        worker process of a sweep) gets: symengine rebuilds an expression from its pickle with its terms in
+        another internal order than the parser, and compiled energies then differ in the last bits, enough
+        to move a converged result by about 1e-12 relative. All processes thus compute with the same form.
     """
     key = cache_key(digest)
     hit = _read(key)
     if hit is not None:
         return hit
     value = parse()
-    _write(key, value)
+    data = _write(key, value)
+    if data is not None:
+        try:
+            return pickle.loads(data)  # our own bytes, just made
+        except Exception:  # pragma: no cover - a value that pickles but does not load back
+            return value
     return value
 
 
