@@ -31,6 +31,8 @@ _EXPORTS = {
     "bundled_databases": "databases.bundled",
     "solvus": "api",
     "uptake": "api",
+    "reduce_database": "databases.reduce",
+    "write_tdb": "databases.reduce",
     "sweep": "sweeps",
     "read_job": "sweeps",
     "Case": "sweeps",

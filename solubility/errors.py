@@ -9,9 +9,9 @@ from __future__ import annotations
 
 __all__ = [
     "ConvergenceError",
-    "DatabaseWarning",
     "DatabaseError",
     "DatabaseNotFoundError",
+    "DatabaseWarning",
     "InputError",
     "JobError",
     "OutputError",

@@ -171,7 +171,9 @@ def test_audit_of_unreadable_file_names_it(capsys, tmp_path):
 def test_databases_lists_bundled(capsys):
     code, out, _ = _run(capsys, "databases", "--json")
     assert code == 0
-    (entry,) = json.loads(out)["databases"]
+    entries = json.loads(out)["databases"]
+    assert [e["name"] for e in entries] == ["fe-c", "steel"]
+    entry = entries[0]
     assert entry["name"] == "fe-c" and entry["file"] == "cfe_broshe.tdb" and "Calphad 34" in entry["citation"]
     code, out, _ = _run(capsys, "databases")
     assert code == 0 and "fe-c" in out and "licence" in out

@@ -17,7 +17,8 @@ a PHASE declared twice and a PARAMETER given twice are refused with their line, 
 zero) are warned about (`UndefinedFunctionWarning`) and recorded in `LoadedDatabase.undefined_functions`.
 Text written on other systems reads as pycalphad reads a file: CRLF and CR line ends, a UTF-8 byte-order mark.
 
-Parsed Databases are cached in-process per (resolved path, sha256): parsing a TDB costs seconds.
+Parsed Databases are cached in-process per (resolved path, sha256), and on disk across runs by the file's
+sha256 (`solubility.databases.parse_cache`): parsing a TDB costs seconds.
 pycalphad is imported inside the functions that need it. The bundled databases are listed by
 `solubility.databases.bundled`; `solubility.databases.extend.add_model` adds a model's phase to a copy.
 """
@@ -239,7 +240,9 @@ def load_database(spec: str | os.PathLike | Database, *, max_bytes: int = MAX_FI
     if cached is not None:
         return cached
     text = _decode(data, label)
-    db, messages = _parse_text(text, label)
+    from solubility.databases.parse_cache import cached_parse  # parsed once, reused across runs
+
+    db, messages = cached_parse(digest, lambda: _parse_text(text, label))
     loaded = _make_loaded(db, label, path, digest, messages)
     with _CACHE_LOCK:
         _CACHE[key] = loaded
