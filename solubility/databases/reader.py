@@ -14,7 +14,7 @@ reaches Python's recursion limits; the guards refuse both, and anything that loo
 After the parse, faults pycalphad reads without a word are looked for (`solubility.databases.pycalphad_io`):
 a PHASE declared twice and a PARAMETER given twice are refused with their line, a FUNCTION that refers to itself
 (directly or through others) is refused, and FUNCTIONs referenced but never defined (pycalphad takes them as
-zero) are warned about (`UndefinedFunctionWarning`) and recorded in `LoadedDatabase.undefined_functions`.
+zero) are recorded in `LoadedDatabase.undefined_functions` and warned about where a chosen phase uses them.
 Text written on other systems reads as pycalphad reads a file: CRLF and CR line ends, a UTF-8 byte-order mark.
 
 Parsed Databases are cached in-process per (resolved path, sha256), and on disk across runs by the file's
@@ -29,7 +29,6 @@ import difflib
 import hashlib
 import os
 import threading
-import warnings
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -45,7 +44,7 @@ from solubility.databases.guard import (
     split_ranges,
 )
 from solubility.databases.pycalphad_io import function_faults, parse_tdb
-from solubility.errors import DatabaseError, DatabaseNotFoundError, InputError, UndefinedFunctionWarning
+from solubility.errors import DatabaseError, DatabaseNotFoundError, InputError
 
 if TYPE_CHECKING:  # pragma: no cover
     from pycalphad import Database
@@ -300,22 +299,16 @@ def _parse_text(text: str, label: str) -> tuple[Any, tuple[str, ...]]:
 
 
 def _check_functions(db: Any, label: str) -> tuple[str, ...]:
-    """Refuse a FUNCTION cycle; warn once about FUNCTIONs referenced but never defined. Returns those names."""
+    """Refuse a FUNCTION cycle; return the FUNCTIONs referenced but never defined (pycalphad takes them as zero).
+
+    Those are only recorded here: a large database often has a few in phases a calculation never uses, so the
+    warning (`solubility.errors.DatabaseWarning`) is given where a chosen phase uses one (`solubility.thermo.checks`).
+    """
     undefined, cycle = function_faults(db)
     if cycle is not None:
         chain = " -> ".join(cycle)
         what = "refers to itself" if len(cycle) == 2 else f"refers to itself through {chain}"
         raise DatabaseError(f"{label}: FUNCTION {cycle[0]} {what}; pycalphad would take it as zero")
-    if undefined:
-        shown = "; ".join(f"{k} (used by {', '.join(v[:3])}{', ...' if len(v) > 3 else ''})"
-                          for k, v in list(undefined.items())[:10])
-        more = f" and {len(undefined) - 10} more" if len(undefined) > 10 else ""
-        warnings.warn(
-            f"{label}: FUNCTION{'s' if len(undefined) > 1 else ''} never defined, taken as zero by pycalphad: "
-            f"{shown}{more}",
-            UndefinedFunctionWarning,
-            stacklevel=5,
-        )
     return tuple(undefined)
 
 
