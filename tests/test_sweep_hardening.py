@@ -193,7 +193,10 @@ def _running(pid: int) -> bool:
 def test_sigterm_stops_the_workers_and_a_second_job_is_refused_meanwhile(tmp_path):
     job = tmp_path / "long.toml"
     job.write_text('[[product]]\nname = "p{pressure}"\ndatabase = "fe-c"\nsolute = "C"\nphase = "BCC_A2"\n'
-                   'temperatures = "700:980:7"\n[product.vary]\npressure = [1e5, 2e5, 3e5, 4e5, 5e5, 6e5]\n')
+                   'temperatures = "700:980:0.5"\n[product.vary]\n'
+                   'pressure = [1e5, 2e5, 3e5, 4e5, 5e5, 6e5, 7e5, 8e5, 9e5, 1e6, 2e6, 3e6]\n')
+    # long enough (12 cases of 561 temperatures, minutes of work) that the sweep is still running when the
+    # second job and the signal come, however fast the machine
     store = tmp_path / "store"
     proc = subprocess.Popen([*_command(), "sweep", str(job), "--workers", "2", "--store", str(store), "--quiet"],
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True, start_new_session=True)
