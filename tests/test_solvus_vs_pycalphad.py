@@ -47,7 +47,11 @@ def test_ferrite_austenite_tie_line_end():
     ds = solubility.solvus("fe-c", "BCC_A2", "C", AUSTENITE_T, exclude=["GRAPHITE", "DIAMOND_A4"])
     assert set(ds.partner.values) == {"FCC_A1"}
     ref = _tie_line_end(["BCC_A2", "FCC_A1"], AUSTENITE_T, 0.002, "BCC_A2")
-    np.testing.assert_allclose(ds.X.values, ref, rtol=1e-9, atol=0)
+    # 1e-8, not 1e-9: here pycalphad's own tie-line end is reproducible only to about 2e-9 relative. Measured:
+    # the same database parsed, and read back from its pickle (same expressions, terms in another internal
+    # order, G of BCC_A2 different by 1e-12 relative), moves pycalphad's BCC_A2 end at 1150 K from
+    # 1.8771793045e-4 to 1.8771793082e-4. The parse cache gives every run the pickled form.
+    np.testing.assert_allclose(ds.X.values, ref, rtol=1e-8, atol=0)
 
 
 @pytest.mark.parametrize("T", [900.0, 1100.0, 1300.0])
