@@ -73,14 +73,16 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
 
 def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[str, float] | None = None,
         bounds: Mapping[str, tuple[float, float]] | None = None, exclude: Sequence[str] = (),
-        pressure: float = 101325.0):
-    """Fit free symbols of one parameter expression to measured solvus data (least squares in ln x).
+        pressure: float = 101325.0, database_text: str | None = None):
+    """Fit free symbols of one parameter expression to measured solubility (least squares in ln x).
 
     Parameters
     ----------
     data
-        CSV file: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner``, ``sigma_rel`` (relative
-        standard uncertainty), ``source`` (`solubility.calc.fitting.read_fit_data`).
+        CSV file: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner`` (a solvus point),
+        ``p_Pa`` (in equilibrium with the pure diatomic gas at that partial pressure, Pa), ``activity`` (at that
+        activity against the element's reference state), ``sigma_rel`` (relative standard uncertainty),
+        ``source`` (`solubility.calc.fit_data.read_fit_data`).
     database, phase, solute, exclude, pressure
         As in `solvus`.
     free
@@ -88,30 +90,41 @@ def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[st
         (``GHSERFE#+3*GHSERCC#+A+B*T``): every name that is no FUNCTION of the database is fitted.
     start, bounds
         Starting values (default 0) and (low, high) bounds by symbol name.
+    database_text
+        TDB text to use instead of the database's file (a model built in memory); `database` then only names it.
 
     Returns
     -------
     solubility.calc.fitting.FitResult
-        ``to_dict()`` gives parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic.
+        ``to_dict()`` gives parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic;
+        `solubility.calc.fitting.fitted_database_text` the database with the fitted values.
     """
+    from solubility.calc.fitting import database_text as text_of
     from solubility.calc.fitting import fit_solvus, free_database, read_fit_data
     from solubility.calc.host import prepare_host
 
     key, sep, expr = str(free).partition("=")
     if not sep or not key.strip() or not expr.strip():
         raise InputError(f"free parameter {free!r} is not 'G(PHASE,M:X;0)=EXPRESSION'")
-    ldb, names = free_database(database, key.strip(), expr.strip())
+    text = text_of(database) if database_text is None else database_text
+    ldb, names = free_database(database, key.strip(), expr.strip(), text=text)
     given = {str(k).upper(): float(v) for k, v in (start or {}).items()}
     unknown = sorted(set(given) - set(names))
     if unknown:
         raise InputError(f"starting value for {unknown[0]}, which is not a free symbol of the expression "
                          f"({', '.join(names)})")
     values = {n: given.get(n, 0.0) for n in names}
-    req = prepare_host(ldb, phase, solute, exclude=exclude, pressure=pressure, parameters=values)
+    req = prepare_host(ldb, phase, solute, exclude=exclude, pressure=pressure, parameters=values,
+                       need_partner=False)
     masses = dict(zip(req.system.elements, (float(m) for m in req.system.molar_masses), strict=True))
     dat = read_fit_data(data, molar_masses=masses, solute=req.solute, host=req.balance)
+    if dat.has_solvus and not req.others:
+        raise InputError(f"the data hold solvus points but no phase other than {req.phase} can form here; give "
+                         "p_Pa or activity for points against a gas or at an activity")
     result = fit_solvus(req, dat, values, {str(k).upper(): v for k, v in (bounds or {}).items()})
-    result.extra.update({"database": ldb.name, "phase": req.phase, "solute": req.solute, "free": str(free)})
+    name = database if isinstance(database, str) and database_text is not None else ldb.name
+    result.extra.update({"database": str(name), "phase": req.phase, "solute": req.solute, "free": str(free)})
+    result.free_key, result.free_expression, result.base_text = key.strip(), expr.strip(), text
     return result
 
 

@@ -155,8 +155,11 @@ def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: 
 
 def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
                   fix: Mapping[str, float] | None = None, pressure: float = 101325.0,
-                  balance: str | None = None, parameters: Mapping[str, float] | None = None) -> CheckedRequest:
+                  balance: str | None = None, parameters: Mapping[str, float] | None = None,
+                  need_partner: bool = True) -> CheckedRequest:
     """Check a host request against its database: phase, solute, excluded phases, fix, pressure, balance.
+
+    `need_partner`: a solvus needs a second candidate phase; uptake at a set potential does not.
 
     Raises
     ------
@@ -194,7 +197,7 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
     candidates = [ph for ph in filter_candidate_phases(ldb.db, elements) if ph not in excluded]
     if phase not in candidates:
         raise InputError(f"host phase {phase} cannot form from {', '.join(elements)}")
-    if len(candidates) < 2:
+    if need_partner and len(candidates) < 2:
         raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
                          f"{', '.join(excluded) or 'nothing'} is excluded")
     return CheckedRequest(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
