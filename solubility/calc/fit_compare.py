@@ -28,7 +28,7 @@ from solubility.errors import InputError
 __all__ = ["EQUAL_CHI2_REL", "SiteChoice", "SiteComparison", "comparison_table", "site_database_text", "structure_of",
            "verdict"]
 
-#: fits whose chi2 agree to this relative amount, plus what the order-x terms can move them (`_equal`), are equal
+#: relative agreement of chi2 always counted as equal (rounding of the engines)
 EQUAL_CHI2_REL = 1e-6
 #: generous bound of the coefficient of the order-x term of ln x between two site choices (it is of order
 #: 1 + a/c: the ideal entropy's expansion ln(y / (1 - y)) with y = a x / (c (1 - x)))
@@ -98,12 +98,23 @@ def site_database_text(database: Any, phase: str, host: str, solute: str, struct
 
 
 def _equal(results: Sequence[Any]) -> bool:
-    """Whether the fits agree to the order-x terms of the dilute limit (|d chi2| <= 2 |r| |d| + |d|^2 with
-    d_i = `ORDER_X_COEFFICIENT` x_i / sigma_i, plus `EQUAL_CHI2_REL` relative)."""
-    chi2 = [r.chi2 for r in results]
-    d = ORDER_X_COEFFICIENT * results[0].data.x / results[0].data.sigma_rel
+    """Whether the fits are equal because the data are dilute for their precision.
+
+    Between two site choices ln x differs by terms of order x once G(M:X) is refitted: d_i <= k x_i / sigma_i in
+    units of the points' uncertainty (k = `ORDER_X_COEFFICIENT`; sigma_i the given sigma_rel, or the fit's scatter
+    for unweighted data). Those terms can move chi2 (in the same units) by at most 2 |r| |d| + |d|^2. When that
+    bound is below 1 (no choice can gain one unit of chi2: the data cannot tell them apart in principle) and the
+    fits' chi2 indeed differ by less than it, the fits are equal.
+    """
+    import numpy as np
+
+    chi2 = np.array([r.chi2 for r in results])
+    data = results[0].data
+    unit = 1.0 if data.weighted else max(float(chi2.min()), 1e-300) / max(results[0].dof, 1)
+    d = ORDER_X_COEFFICIENT * data.x / (data.sigma_rel * math.sqrt(unit))
     d2 = float(d @ d)
-    return max(chi2) - min(chi2) <= EQUAL_CHI2_REL * max(chi2) + 2.0 * math.sqrt(max(chi2) * d2) + d2
+    bound = 2.0 * math.sqrt(float(chi2.max()) / unit * d2) + d2
+    return bound < 1.0 and float(chi2.max() - chi2.min()) / unit <= bound + EQUAL_CHI2_REL * float(chi2.max()) / unit
 
 
 def verdict(labels: Sequence[str], results: Sequence[Any], c_values: Sequence[float]) -> tuple[str, str]:

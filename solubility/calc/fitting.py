@@ -193,6 +193,9 @@ def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
     from scipy.optimize import least_squares
 
     names = tuple(sorted(start))
+    if data.T.size < len(names):
+        raise InputError(f"the data hold {data.T.size} point(s) for {len(names)} free symbols ({', '.join(names)}); "
+                         "give at least as many points as free symbols")
     for ptn in set(data.partner) - {""}:
         if ptn not in req.candidates:
             raise InputError(f"partner {ptn!r} of the data is not a phase that may appear here "
@@ -232,7 +235,9 @@ def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
     if not data.weighted and n > k:
         cov = cov * chi2 / (n - k)
     rss = max(chi2 / n, 1e-300)
-    return FitResult(names, sol.x, np.sqrt(np.diag(cov)), cov, r, np.exp(lnx_fit), chi2, n,
+    with np.errstate(invalid="ignore"):  # a parameter the data do not fix: nan, never a number
+        stderr = np.where(np.diag(cov) >= 0, np.sqrt(np.abs(np.diag(cov))), np.nan)
+    return FitResult(names, sol.x, stderr, cov, r, np.exp(lnx_fit), chi2, n,
                      float(n * math.log(rss) + 2 * k), float(n * math.log(rss) + k * math.log(n)), data,
                      fwd.partners, fwd.evaluations, bool(sol.success and ok.all()), str(sol.message),
                      forward=fwd)
