@@ -65,8 +65,9 @@ def plot_fit(result: Any, ax: Any = None, band: Any = None, labels: Sequence[str
             top.plot(inv[order], res.x_model[order], "-", color=colour, label=lab)
         bottom.plot(inv, np.log(res.x_model) - np.log(d.x), "o" if i == 0 else "x", ms=4, color=colour)
     kind = "σ_rel" if d.weighted else "fit scatter"
+    where = f" at {bands[0].attrs['band_line']}" if bands[0] is not None and not show.all() else ""
     top.errorbar(inv[show], d.x[show], yerr=_error_bars(results[0], d.x)[:, show], fmt="o", ms=4, color="C0",
-                 capsize=2, label=f"data (±1 {kind})", zorder=5)
+                 capsize=2, label=f"data{where} (±1 {kind})", zorder=5)
     top.set_yscale("log")
     top.set_ylabel("mole fraction x")
     if len(results) == 1:
