@@ -17,7 +17,8 @@ from ideal_systems import ideal_db
 import solubility
 from solubility.databases.reader import _parse_text
 from solubility.errors import InputError
-from solubility.models.sublattice import SublatticeModel, dilute_solubility
+from solubility.models.closed_forms import dilute_solubility
+from solubility.models.sublattice import SublatticeModel
 from solubility.thermo.system import CACHE_SIZE, cache_info, compiled_system, database_digest
 
 T = np.array([400.0, 600.0, 800.0])  # K

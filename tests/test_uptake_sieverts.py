@@ -16,7 +16,8 @@ import numpy as np
 import pytest
 
 import solubility
-from solubility.models.sublattice import SublatticeModel, dilute_solubility
+from solubility.models.closed_forms import dilute_solubility
+from solubility.models.sublattice import SublatticeModel
 from solubility.results.uptake_dataset import V_STP, sieverts_fit
 from solubility.thermo.gas import nasa_gibbs
 

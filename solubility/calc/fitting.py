@@ -193,14 +193,14 @@ def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
     from scipy.optimize import least_squares
 
     names = tuple(sorted(start))
-    if data.T.size < len(names):
-        raise InputError(f"the data hold {data.T.size} point(s) for {len(names)} free symbols ({', '.join(names)}); "
-                         "give at least as many points as free symbols")
     for ptn in set(data.partner) - {""}:
         if ptn not in req.candidates:
             raise InputError(f"partner {ptn!r} of the data is not a phase that may appear here "
                              f"({', '.join(req.others) or 'none'})")
     fwd = Forward(req, names, data.T, data.kind, data.value)
+    if data.T.size < len(names):
+        raise InputError(f"the data hold {data.T.size} point(s) for {len(names)} free symbols ({', '.join(names)}); "
+                         "give at least as many points as free symbols")
     lnx_data = np.log(data.x)
 
     def resid(theta: np.ndarray) -> np.ndarray:
