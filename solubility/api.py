@@ -12,7 +12,7 @@ from collections.abc import Callable, Mapping, Sequence
 from solubility.calc.inputs import MAX_TEMPERATURES
 from solubility.errors import InputError
 
-__all__ = ["fit", "solvus", "uptake"]
+__all__ = ["fit", "fit_band", "fit_sites", "solvus", "uptake"]
 
 
 def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
@@ -75,14 +75,16 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
 
 def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[str, float] | None = None,
         bounds: Mapping[str, tuple[float, float]] | None = None, exclude: Sequence[str] = (),
-        pressure: float = 101325.0):
-    """Fit free symbols of one parameter expression to measured solvus data (least squares in ln x).
+        pressure: float = 101325.0, database_text: str | None = None):
+    """Fit free symbols of one parameter expression to measured solubility (least squares in ln x).
 
     Parameters
     ----------
     data
-        CSV file: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner``, ``sigma_rel`` (relative
-        standard uncertainty), ``source`` (`solubility.calc.fitting.read_fit_data`).
+        CSV file: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner`` (a solvus point),
+        ``p_Pa`` (in equilibrium with the pure diatomic gas at that partial pressure, Pa), ``activity`` (at that
+        activity against the element's reference state), ``sigma_rel`` (relative standard uncertainty),
+        ``source`` (`solubility.calc.fit_data.read_fit_data`).
     database, phase, solute, exclude, pressure
         As in `solvus`.
     free
@@ -90,31 +92,138 @@ def fit(data, database, phase: str, solute: str, free: str, *, start: Mapping[st
         (``GHSERFE#+3*GHSERCC#+A+B*T``): every name that is no FUNCTION of the database is fitted.
     start, bounds
         Starting values (default 0) and (low, high) bounds by symbol name.
+    database_text
+        TDB text to use instead of the database's file (a model built in memory); `database` then only names it.
 
     Returns
     -------
     solubility.calc.fitting.FitResult
-        ``to_dict()`` gives parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic.
+        ``to_dict()`` gives parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic;
+        `solubility.calc.fitting.fitted_database_text` the database with the fitted values.
     """
+    from solubility.calc.fitting import database_text as text_of
     from solubility.calc.fitting import fit_solvus, free_database, read_fit_data
     from solubility.calc.host import prepare_host
 
     key, sep, expr = str(free).partition("=")
     if not sep or not key.strip() or not expr.strip():
         raise InputError(f"free parameter {free!r} is not 'G(PHASE,M:X;0)=EXPRESSION'")
-    ldb, names = free_database(database, key.strip(), expr.strip())
+    text = text_of(database) if database_text is None else database_text
+    ldb, names = free_database(database, key.strip(), expr.strip(), text=text)
     given = {str(k).upper(): float(v) for k, v in (start or {}).items()}
     unknown = sorted(set(given) - set(names))
     if unknown:
         raise InputError(f"starting value for {unknown[0]}, which is not a free symbol of the expression "
                          f"({', '.join(names)})")
     values = {n: given.get(n, 0.0) for n in names}
-    req = prepare_host(ldb, phase, solute, exclude=exclude, pressure=pressure, parameters=values)
+    req = prepare_host(ldb, phase, solute, exclude=exclude, pressure=pressure, parameters=values,
+                       need_partner=False)
     masses = dict(zip(req.system.elements, (float(m) for m in req.system.molar_masses), strict=True))
     dat = read_fit_data(data, molar_masses=masses, solute=req.solute, host=req.balance)
+    if dat.has_solvus and not req.others:
+        raise InputError(f"the data hold solvus points but no phase other than {req.phase} can form here; give "
+                         "p_Pa or activity for points against a gas or at an activity")
     result = fit_solvus(req, dat, values, {str(k).upper(): v for k, v in (bounds or {}).items()})
-    result.extra.update({"database": ldb.name, "phase": req.phase, "solute": req.solute, "free": str(free)})
+    name = database if isinstance(database, str) and database_text is not None else ldb.name
+    result.extra.update({"database": str(name), "phase": req.phase, "solute": req.solute, "free": str(free)})
+    result.free_key, result.free_expression, result.base_text = key.strip(), expr.strip(), text
     return result
+
+
+def fit_sites(data, database, phase: str, solute: str, free: str, sites: Sequence[str], *,
+              structure: str | None = None, start: Mapping[str, float] | None = None,
+              bounds: Mapping[str, tuple[float, float]] | None = None, exclude: Sequence[str] = (),
+              pressure: float = 101325.0):
+    """Fit the same data under several site choices of the host phase and compare them.
+
+    Parameters
+    ----------
+    sites
+        Site choices ``KIND`` or ``KIND:BLOCKING`` (e.g. ``["octahedral", "tetrahedral"]``). Each gives the
+        interstitial site ratio c = a n (1 - b) of `structure`; the database's `phase` is re-expressed for it
+        (`solubility.calc.fit_compare`: interactions holding the solute set to zero) before the fit.
+    free
+        As in `fit`; ``{c}`` in the expression stands for each choice's site ratio (so ``GHSERFE#+{c}*(A+B*T)``
+        fits A and B per mole of solute, comparable between the choices).
+    structure
+        fcc, bcc, hcp, sc, diamond or a structure file; default from the phase name (BCC_A2 -> bcc).
+    data, database, phase, solute, start, bounds, exclude, pressure
+        As in `fit`.
+
+    Returns
+    -------
+    solubility.calc.fit_compare.SiteComparison
+        ``table()`` the fits side by side (parameters with standard errors, chi2, AIC, BIC), ``verdict()`` whether
+        the data tell the choices apart, ``to_dict()`` for JSON.
+    """
+    from solubility.calc.fit_compare import SiteChoice, SiteComparison, site_database_text, structure_of
+    from solubility.databases.reader import check_phases, load_database
+
+    choices = tuple(SiteChoice.parse(s) for s in sites)
+    if not choices:
+        raise InputError("give at least one site choice (KIND or KIND:BLOCKING)")
+    if len(set(choices)) != len(choices):
+        raise InputError("a site choice is given twice")
+    ldb = load_database(database)
+    (ph,) = check_phases(ldb, [str(phase).strip().upper()])
+    _, species = ldb.sublattices(ph)
+    hosts = [e for e in species[0] if e != "VA"]
+    if len(hosts) != 1:
+        raise InputError(f"phase {ph} holds {', '.join(hosts)} on its first sublattice; site choices are compared "
+                         "for one host element")
+    lattice = structure or structure_of(ph)
+    texts, cs, results = [], [], []
+    for ch in choices:
+        text, c, dropped = site_database_text(database, ph, hosts[0], str(solute).strip().upper(), lattice, ch)
+        texts.append(text)
+        cs.append(c)
+        results.append(fit(data, ldb.name, ph, solute, str(free).replace("{c}", f"{c:.15g}"), start=start,
+                           bounds=bounds, exclude=exclude, pressure=pressure, database_text=text))
+        results[-1].extra.update({"site": ch.kind, "blocking": ch.blocking, "c": c, "interactions_dropped": dropped})
+    return SiteComparison(choices, tuple(cs), tuple(results), lattice)
+
+
+def fit_band(result, temperatures, *, line: str | None = None, confidence: float = 0.95, samples=None,
+             celsius: bool = False):
+    """The fitted solvus or uptake line over `temperatures` with its uncertainty band.
+
+    Parameters
+    ----------
+    result
+        A fit from `fit` (or one entry of `fit_sites`).
+    temperatures
+        K (Celsius with ``celsius=True``): a sequence or "START:STOP:STEP".
+    line
+        ``solvus``, ``p_Pa=VALUE`` (uptake from X2 at that partial pressure, Pa) or ``activity=VALUE``; default:
+        the one condition of the data.
+    confidence
+        Two-sided confidence of the bounds, 0 < confidence < 1 (default 0.95).
+    samples
+        None: the fitted covariance, linearised. A CSV file (one column per free symbol, e.g. an MCMC trace) or
+        an array (m, k): the bounds are the quantiles of the lines at the samples.
+
+    Returns
+    -------
+    xarray.Dataset
+        X, X_LOWER, X_UPPER, PPM, PPM_LOWER, PPM_UPPER, SIGMA_LNX over ``T``; attrs ``confidence``,
+        ``band_method``, ``band_line``, ``parameters``, ``covariance`` (`solubility.results.fit_dataset`).
+    """
+    import numpy as np
+
+    from solubility.calc.fit_bands import band_condition, compute_band, read_samples
+    from solubility.calc.inputs import parse_temperatures
+    from solubility.results.fit_dataset import build_band_dataset
+
+    T = parse_temperatures(temperatures, celsius=celsius)
+    try:
+        conf = float(confidence)
+    except (TypeError, ValueError):
+        raise InputError(f"confidence {confidence!r} is not a number (0 < confidence < 1)") from None
+    cond = band_condition(line, result.data)
+    if samples is not None and not isinstance(samples, np.ndarray):
+        samples = read_samples(samples, result.names)
+    band = compute_band(result, T, cond, confidence=conf, samples=samples)
+    return build_band_dataset(band, result)
 
 
 def uptake(database, phase: str, solute: str, temperatures, *, activity: float | None = None,

@@ -62,9 +62,9 @@ def test_recovers_within_standard_errors_with_noise(tmp_path):
         ("T_K,x\n800,-0.001\n", FREE, "above zero"),
         ("T_K,x,partner\n800,0.0001,NOSUCH_PHASE\n", FREE, "partner 'NOSUCH_PHASE'"),
         ("T_K,x\n800,0.0001\n", "G(BCC_A2,FE:C;0)=GA2FE#+3*GA9C#+322050", "no free symbol"),
-        ("T_K,x,p_Pa\n800,0.0001,1e5\n", FREE, "uptake"),
+        ("T_K,x,p_Pa\n800,0.0001,1e5\n", FREE, "no diatomic gas"),
     ],
-    ids=["missing-column", "negative-x", "unknown-partner", "no-free-symbol", "gas-data-not-yet"],
+    ids=["missing-column", "negative-x", "unknown-partner", "no-free-symbol", "carbon-has-no-gas"],
 )
 def test_bad_data_files_one_line_exit_2(tmp_path, capsys, content, free, message):
     path = tmp_path / "bad.csv"

@@ -1,8 +1,11 @@
-"""Least-squares fits of free model parameters to measured solubility, with the exact solvus engine as forward model.
+"""Least-squares fits of free model parameters to measured solubility, with the exact engines as forward model.
 
 The free parameters are symbols of a PARAMETER expression left undefined in the database (``A + B*T``); the
 compiled system keeps them free and takes their values per call (`solubility.calc.host.prepare_host`), so an
-iteration binds new values and nothing is recompiled. Residuals are in ln x (relative errors):
+iteration binds new values and nothing is recompiled. The forward model of a solvus point is the exact solvus
+(`solubility.calc.boundary.solvus_line`); of a gas point (``p_Pa``) or a point at an activity, the uptake
+engine's exact solve of the host's content at that potential (`solubility.calc.surroundings.host_contents`).
+Residuals are in ln x (relative errors):
 ``r_i = (ln x_model(T_i) - ln x_i) / sigma_i`` with ``sigma_i`` the relative standard uncertainty of point i
 (1 when the data give none: then the covariance is scaled by chi2 / (n - k), the usual estimate of the scatter).
 Covariance ``(J^T J)^-1`` from the Jacobian at the optimum; ``chi2 = sum r_i^2``; for Gaussian errors
@@ -12,119 +15,25 @@ to the same data, so only differences between models mean anything).
 
 from __future__ import annotations
 
-import csv
 import dataclasses
 import math
-import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from solubility.calc.fit_data import SYMBOL_RE, FitData, free_symbols, read_fit_data
 from solubility.errors import InputError
 
-__all__ = ["FitData", "FitResult", "fit_solvus", "free_database", "free_symbols", "read_fit_data"]
+__all__ = ["FitData", "FitResult", "Forward", "fit_solvus", "fitted_database_text", "free_database", "free_symbols",
+           "read_fit_data", "substitute"]
 
-_COMPOSITION_COLUMNS = ("x", "wt_percent", "ppm")
-_KNOWN = {"T_K", *_COMPOSITION_COLUMNS, "partner", "p_Pa", "activity", "sigma_rel", "source"}
-#: relative forward-difference step of the Jacobian, times max(|value|, 1); the engine's ln x is exact to about
-#: 1e-10 (its tolerance), so a step moving ln x by about 1e-6 keeps the Jacobian's error near 1e-4 relative
+#: relative forward-difference step of the Jacobian, times max(|value|, 1); the engines' ln x is exact to about
+#: 1e-10 (their tolerance), so a step moving ln x by about 1e-6 keeps the Jacobian's error near 1e-4 relative
 _FD_STEP = 1e-6
-
-
-@dataclass(frozen=True)
-class FitData:
-    """Measured solvus points: temperatures (K), mole fractions, relative uncertainties, partners, sources."""
-
-    T: np.ndarray
-    x: np.ndarray
-    sigma_rel: np.ndarray
-    partner: tuple[str, ...]
-    source: tuple[str, ...]
-    weighted: bool
-
-
-def read_fit_data(path: str | Path, *, molar_masses: Mapping[str, float] | None = None, solute: str = "",
-                  host: str = "") -> FitData:
-    """Read a data CSV: ``T_K``; one of ``x``, ``wt_percent``, ``ppm``; optional ``partner``, ``p_Pa``,
-    ``activity``, ``sigma_rel``, ``source``.
-
-    wt_percent and ppm (by mass) are converted to mole fractions of a binary host-solute alloy with
-    `molar_masses` (g/mol). Points in equilibrium with a gas (``p_Pa``) or at an activity need the uptake
-    calculation and are refused for now.
-
-    Raises
-    ------
-    InputError
-        A missing or unknown column, a value that is not a positive finite number, a fraction outside (0, 1).
-    """
-    p = Path(path)
-    try:
-        with open(p, newline="", encoding="utf-8") as fh:
-            reader = csv.DictReader(fh)
-            rows = [{(k or "").strip(): v for k, v in r.items()} for r in reader]
-            header = [h.strip() for h in (reader.fieldnames or [])]
-    except OSError as exc:
-        raise InputError(f"data file {str(p)!r} cannot be read: {exc.strerror or exc}") from None
-    unknown = [h for h in header if h not in _KNOWN]
-    if unknown:
-        raise InputError(f"data file {p.name}: unknown column {unknown[0]!r}; columns: T_K; one of x, wt_percent, "
-                         "ppm; optional partner, p_Pa, activity, sigma_rel, source")
-    if "T_K" not in header:
-        raise InputError(f"data file {p.name}: column T_K is missing (temperature, K)")
-    comp = [c for c in _COMPOSITION_COLUMNS if c in header]
-    if len(comp) != 1:
-        raise InputError(f"data file {p.name}: give exactly one of the columns x, wt_percent, ppm (found "
-                         f"{', '.join(comp) or 'none'})")
-    for col in ("p_Pa", "activity"):
-        if col in header and any((r.get(col) or "").strip() for r in rows):
-            raise InputError(f"data file {p.name}: column {col} needs the uptake calculation, which is not "
-                             "available yet; fit solvus points (with a partner phase) for now")
-    if not rows:
-        raise InputError(f"data file {p.name} has no data rows")
-    col = comp[0]
-    def column(name: str) -> np.ndarray:
-        return np.array([_number(r, name, p.name, i) for i, r in enumerate(rows, start=2)])
-
-    T, v = column("T_K"), column(col)
-    weighted = "sigma_rel" in header
-    sig = column("sigma_rel") if weighted else np.ones_like(T)
-    if col == "x":
-        x = v
-    else:
-        w = v / (100.0 if col == "wt_percent" else 1e6)
-        if molar_masses is None:
-            raise InputError("mass fractions need the molar masses of the host and the solute")
-        ms, mh = molar_masses[solute], molar_masses[host]
-        x = (w / ms) / (w / ms + (1.0 - w) / mh)
-    if np.any(x >= 1.0):
-        raise InputError(f"data file {p.name}: a composition is 1 or more (column {col}); give fractions below 1")
-    partner = tuple((r.get("partner") or "").strip().upper() for r in rows)
-    source = tuple((r.get("source") or "").strip() for r in rows)
-    return FitData(T, x, sig, partner, source, weighted)
-
-
-def _number(row: Mapping[str, str], name: str, file: str, line: int) -> float:
-    text = (row.get(name) or "").strip()
-    try:
-        value = float(text)
-    except ValueError:
-        raise InputError(f"data file {file}, line {line}: {name} = {text!r} is not a number") from None
-    if not math.isfinite(value) or value <= 0:
-        raise InputError(f"data file {file}, line {line}: {name} = {text!r} must be a finite number above zero")
-    return value
-
-
-_SYMBOL_RE = re.compile(r"(?<![A-Z0-9_.#])([A-Z_][A-Z0-9_]*)(?![A-Z0-9_#(])")
-
-
-def free_symbols(expression: str, defined: Sequence[str]) -> list[str]:
-    """Names in a TDB expression that are neither FUNCTIONs of the database (`defined`) nor T, P, R, LN, EXP, LOG."""
-    names = {m.group(1) for m in _SYMBOL_RE.finditer(expression.upper())}
-    names -= {"T", "P", "R", "LN", "EXP", "LOG", *(d.upper() for d in defined)}
-    return sorted(n for n in names if not re.fullmatch(r"[ED]\d*", n))
+#: residual given to a point the model has no number for (never chosen at the optimum)
+_MISSING = 1e3
 
 
 @dataclass
@@ -147,6 +56,11 @@ class FitResult:
     converged: bool
     message: str
     extra: dict[str, Any] = field(default_factory=dict)
+    #: the fitted PARAMETER, its expression with the free symbols, the database text it was set in
+    free_key: str = ""
+    free_expression: str = ""
+    base_text: str = field(default="", repr=False)
+    forward: Any = field(default=None, repr=False)
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe: parameters {name: {value, stderr}}, covariance, residuals, chi2, n_points, aic, bic, ..."""
@@ -160,26 +74,106 @@ class FitResult:
             "partners": list(self.partners), "n_solvus_lines": self.n_solvus_lines, **self.extra,
         }
 
+    @property
+    def dof(self) -> int:
+        """Degrees of freedom n - k."""
+        return self.n_points - len(self.names)
 
-def _mole_fraction(line: Any, solute: str) -> tuple[np.ndarray, tuple[str, ...], list[bool]]:
-    k = list(line.elements).index(solute)
-    xs, partners, ok = [], [], []
-    for pt in line.points:
-        good = pt.status == "ok" and math.isfinite(pt.s)
-        if good:
-            moles = line.host_moles @ line.host.y(pt.s)
-            real = [i for i, e in enumerate(line.elements) if e != "VA"]
-            xs.append(float(moles[k] / moles[real].sum()))
-        else:
-            xs.append(float("nan"))
-        partners.append("+".join(pt.partners))
-        ok.append(good)
-    return np.array(xs), tuple(partners), ok
+
+def _x_of_s(req: Any, s: np.ndarray) -> np.ndarray:
+    """Mole fraction of the solute in the host at ln y = s (nan stays nan)."""
+    elements = list(req.system.elements)
+    k = elements.index(req.solute)
+    real = [i for i, e in enumerate(elements) if e != "VA"]
+    moles = req.system.phases[req.phase].moles
+    out = np.full(len(s), np.nan)
+    for i, si in enumerate(s):
+        if math.isfinite(si):
+            m = moles @ req.host.y(float(si))
+            out[i] = m[k] / m[real].sum()
+    return out
+
+
+class Forward:
+    """ln x of the model at given points as a function of the free parameters (values bound, never compiled).
+
+    Parameters
+    ----------
+    req
+        The host request (`prepare_host(..., parameters=start)`).
+    names
+        Free symbols, in the order of the parameter vectors.
+    T, kind, value
+        The points: K; "solvus", "p_Pa" or "activity"; the partial pressure (Pa) or the activity (nan for solvus).
+    """
+
+    def __init__(self, req: Any, names: Sequence[str], T: Sequence[float], kind: Sequence[str],
+                 value: Sequence[float]) -> None:
+        from solubility.calc.surroundings import Surroundings, solute_potential
+
+        self.req, self.names = req, tuple(names)
+        self.T = np.asarray(T, dtype=float)
+        self.kind, self.value = tuple(kind), np.asarray(value, dtype=float)
+        self.evaluations = 0
+        self._solvus = np.flatnonzero([k == "solvus" for k in self.kind])
+        self._groups: dict[tuple[str, float], tuple[list[int], Any]] = {}
+        for i, (k, v) in enumerate(zip(self.kind, self.value, strict=True)):
+            if k == "solvus":
+                continue
+            if (k, float(v)) not in self._groups:
+                sur = Surroundings.check(activity=v) if k == "activity" else Surroundings.check(partial_pressure=v)
+                self._groups[(k, float(v))] = ([], solute_potential(req.database, req.solute, sur, req.pressure))
+            self._groups[(k, float(v))][0].append(i)
+        self._s = np.full(self.T.size, np.nan)  # last solutions: warm starts of the uptake solves
+        self.partners: tuple[str, ...] = ("",) * self.T.size
+
+    def bind(self, theta: Sequence[float]) -> Any:
+        """The host request with the parameter values `theta` bound (compiles nothing)."""
+        params = dict(zip(self.names, (float(t) for t in theta), strict=True))
+        system = self.req.system.compiled.bind(self.req.pressure, params)
+        return dataclasses.replace(self.req, system=system, parameters=params)
+
+    def lnx(self, theta: Sequence[float]) -> np.ndarray:
+        """ln x at every point (nan where the model has no number: no solvus, no solution)."""
+        from solubility.calc.boundary import solvus_line
+        from solubility.calc.surroundings import host_contents
+
+        req = self.bind(theta)
+        out = np.full(self.T.size, np.nan)
+        partners = list(self.partners)
+        self.evaluations += 1
+        if self._solvus.size:
+            line = solvus_line(req, self.T[self._solvus])
+            s = np.array([p.s if p.status == "ok" and math.isfinite(p.s) else np.nan for p in line.points])
+            out[self._solvus] = np.log(_x_of_s(req, s))
+            for i, p in zip(self._solvus, line.points, strict=True):
+                partners[i] = "+".join(p.partners)
+        for (k, v), (idx, pot) in self._groups.items():
+            s = host_contents(req, pot, self.T[idx], self._s[idx])
+            self._s[idx] = np.where(np.isfinite(s), s, self._s[idx])
+            out[idx] = np.log(_x_of_s(req, s))
+            for i in idx:
+                partners[i] = f"{'gas' if k == 'p_Pa' else 'activity'} {v:g}"
+        self.partners = tuple(partners)
+        return out
+
+    def jacobian(self, theta: np.ndarray, f0: np.ndarray | None = None) -> np.ndarray:
+        """d ln x / d theta by forward differences (step `_FD_STEP` relative)."""
+        f0 = self.lnx(theta) if f0 is None else f0
+        J = np.empty((f0.size, len(theta)))
+        for j in range(len(theta)):
+            h = _FD_STEP * max(abs(theta[j]), 1.0)
+            t = np.array(theta, dtype=float)
+            t[j] += h
+            J[:, j] = (self.lnx(t) - f0) / h
+        return J
 
 
 def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
                bounds: Mapping[str, tuple[float, float]] | None = None) -> FitResult:
-    """Fit the free parameters of a host request (`prepare_host(..., parameters=start)`) to solvus data.
+    """Fit the free parameters of a host request (`prepare_host(..., parameters=start)`) to the data.
+
+    Solvus points use the exact solvus, gas and activity points the uptake solve (module docstring).
 
     Parameters
     ----------
@@ -193,59 +187,47 @@ def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
     Raises
     ------
     InputError
-        A data point names a partner that is not a candidate phase; the model has no solvus at a temperature
-        of the data at the starting values.
+        A data point names a partner that is not a candidate phase; the model has no number at a point of the
+        data at the starting values.
     """
     from scipy.optimize import least_squares
-
-    from solubility.calc.boundary import solvus_line
 
     names = tuple(sorted(start))
     for ptn in set(data.partner) - {""}:
         if ptn not in req.candidates:
             raise InputError(f"partner {ptn!r} of the data is not a phase that may appear here "
-                             f"({', '.join(req.others)})")
-    compiled = req.system.compiled
-    count = {"lines": 0}
-
-    def line_at(theta: np.ndarray) -> tuple[np.ndarray, tuple[str, ...], list[bool]]:
-        params = dict(zip(names, (float(t) for t in theta), strict=True))
-        system = compiled.bind(req.pressure, params)  # binds values; compiles nothing
-        r2 = dataclasses.replace(req, system=system, parameters=params)
-        count["lines"] += 1
-        return _mole_fraction(solvus_line(r2, data.T), req.solute)
+                             f"({', '.join(req.others) or 'none'})")
+    fwd = Forward(req, names, data.T, data.kind, data.value)
+    if data.T.size < len(names):
+        raise InputError(f"the data hold {data.T.size} point(s) for {len(names)} free symbols ({', '.join(names)}); "
+                         "give at least as many points as free symbols")
+    lnx_data = np.log(data.x)
 
     def resid(theta: np.ndarray) -> np.ndarray:
-        x, _, ok = line_at(theta)
-        r = (np.log(np.where(ok, x, np.nan)) - np.log(data.x)) / data.sigma_rel
-        return np.where(np.isfinite(r), r, 1e3)  # a point without a solvus costs much (never chosen at the optimum)
+        r = (fwd.lnx(theta) - lnx_data) / data.sigma_rel
+        return np.where(np.isfinite(r), r, _MISSING)
 
     def jac(theta: np.ndarray) -> np.ndarray:
-        r0 = resid(theta)
-        J = np.empty((r0.size, theta.size))
-        for j in range(theta.size):
-            h = _FD_STEP * max(abs(theta[j]), 1.0)
-            t = theta.copy()
-            t[j] += h
-            J[:, j] = (resid(t) - r0) / h
-        return J
+        return fwd.jacobian(theta) / data.sigma_rel[:, None]
 
     x0 = np.array([start[n] for n in names], dtype=float)
-    _, _, ok0 = line_at(x0)
-    if not all(ok0):
-        bad = data.T[~np.asarray(ok0)]
-        raise InputError(f"the model has no solvus at {bad[0]:g} K with the starting values; give other starting "
+    ok0 = np.isfinite(fwd.lnx(x0))
+    if not ok0.all():
+        bad = data.T[~ok0]
+        what = "solvus" if data.kind[int(np.flatnonzero(~ok0)[0])] == "solvus" else "solution"
+        raise InputError(f"the model has no {what} at {bad[0]:g} K with the starting values; give other starting "
                          "values (--start NAME=VALUE)")
     lo = np.array([(bounds or {}).get(n, (-np.inf, np.inf))[0] for n in names])
     hi = np.array([(bounds or {}).get(n, (-np.inf, np.inf))[1] for n in names])
     scale = np.maximum(np.abs(x0), 1.0)
     sol = least_squares(resid, x0, jac=jac, bounds=(lo, hi), x_scale=scale, method="trf", xtol=1e-12,
                         ftol=1e-12, gtol=1e-12, max_nfev=100)
-    x_fit, partners, ok = line_at(sol.x)
-    r = (np.log(x_fit) - np.log(data.x)) / data.sigma_rel
+    lnx_fit = fwd.lnx(sol.x)
+    ok = np.isfinite(lnx_fit)
+    r = (lnx_fit - lnx_data) / data.sigma_rel
     J = sol.jac
     n, k = r.size, len(names)
-    chi2 = float(np.sum(r * r))
+    chi2 = float(np.sum(np.where(ok, r, _MISSING) ** 2))
     try:
         cov = np.linalg.inv(J.T @ J)
     except np.linalg.LinAlgError:
@@ -253,14 +235,38 @@ def fit_solvus(req: Any, data: FitData, start: Mapping[str, float],
     if not data.weighted and n > k:
         cov = cov * chi2 / (n - k)
     rss = max(chi2 / n, 1e-300)
-    return FitResult(names, sol.x, np.sqrt(np.diag(cov)), cov, r, x_fit, chi2, n,
-                     float(n * math.log(rss) + 2 * k), float(n * math.log(rss) + k * math.log(n)), data, partners,
-                     count["lines"], bool(sol.success and all(ok)), str(sol.message))
+    with np.errstate(invalid="ignore"):  # a parameter the data do not fix: nan, never a number
+        stderr = np.where(np.diag(cov) >= 0, np.sqrt(np.abs(np.diag(cov))), np.nan)
+    return FitResult(names, sol.x, stderr, cov, r, np.exp(lnx_fit), chi2, n,
+                     float(n * math.log(rss) + 2 * k), float(n * math.log(rss) + k * math.log(n)), data,
+                     fwd.partners, fwd.evaluations, bool(sol.success and ok.all()), str(sol.message),
+                     forward=fwd)
 
 
+def substitute(expression: str, values: Mapping[str, float]) -> str:
+    """A TDB expression with each free symbol replaced by its value (in parentheses, full precision)."""
+    vals = {str(k).upper(): float(v) for k, v in values.items()}
+    return SYMBOL_RE.sub(lambda m: f"({vals[m.group(1)]:.15E})" if m.group(1) in vals else m.group(0),
+                         expression.upper())
 
-def free_database(database: Any, key: str, expression: str) -> tuple[Any, list[str]]:
+
+def fitted_database_text(result: FitResult) -> str:
+    """The database the fit started from with the fitted values written into its PARAMETER."""
+    from solubility.models.tdb_writer import with_parameter
+
+    if not result.base_text or not result.free_key:
+        raise InputError("this fit holds no database text to write (fit through solubility.api.fit)")
+    values = dict(zip(result.names, result.values, strict=True))
+    return with_parameter(result.base_text, result.free_key, substitute(result.free_expression, values))
+
+
+def free_database(database: Any, key: str, expression: str, *, text: str | None = None) -> tuple[Any, list[str]]:
     """The database with PARAMETER `key` set to `expression` whose undefined symbols are left free.
+
+    Parameters
+    ----------
+    database
+        Path, bundled name or loaded database; `text`, when given, is used instead of its file's text.
 
     Returns
     -------
@@ -279,10 +285,8 @@ def free_database(database: Any, key: str, expression: str) -> tuple[Any, list[s
     from solubility.models.tdb_commands import functions_of
     from solubility.models.tdb_writer import with_parameter
 
-    ldb = load_database(database)
-    if ldb.path is None:
-        raise InputError(f"database {ldb.name!r} has no file; give a TDB file or a bundled name")
-    text = ldb.path.read_text(encoding="utf-8", errors="replace")
+    if text is None:
+        text = database_text(database)
     names = free_symbols(expression, list(functions_of(text)))
     if not names:
         raise InputError(f"expression {expression!r} names no free symbol; write the unknowns as names, e.g. A+B*T")
@@ -296,3 +300,13 @@ def free_database(database: Any, key: str, expression: str) -> tuple[Any, list[s
     finally:
         os.unlink(tmp)
     return loaded, names
+
+
+def database_text(database: Any) -> str:
+    """The TDB text of a database (path or bundled name); InputError when it has no file."""
+    from solubility.databases.reader import load_database
+
+    ldb = load_database(database)
+    if ldb.path is None:
+        raise InputError(f"database {ldb.name!r} has no file; give a TDB file or a bundled name")
+    return ldb.path.read_text(encoding="utf-8", errors="replace")

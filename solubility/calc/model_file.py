@@ -16,10 +16,35 @@ from solubility.models.sublattice import SublatticeModel
 from solubility.models.tdb_commands import parameters_of
 from solubility.models.tdb_writer import extend_tdb, normalise_parameters, standalone_tdb
 
-__all__ = ["SHIFT_FRACTIONS", "model_database_text"]
+__all__ = ["GAS_ELEMENT_DATA", "SHIFT_FRACTIONS", "model_database_text"]
 
 #: mole fractions at which the move of the concentrated behaviour is reported
 SHIFT_FRACTIONS = (1e-3, 1e-2, 0.05, 0.1)
+
+
+def _gas_element(name: str, molecule: str, mass: float, h298_molecule: float) -> tuple[str, float, float, float]:
+    from solubility.thermo.gas import S298_HALF
+
+    return (f"1/2_MOLE_{molecule}(GAS)", mass, h298_molecule / 2.0, S298_HALF[name])
+
+
+#: ELEMENT data of the gaseous interstitials, used when the source database does not hold the element:
+#: reference state 1/2 X2 gas (the SGTE convention), standard atomic weight (IUPAC, g/mol), H(298.15) - H(0) and
+#: S(298.15) of half a mole of X2 (NIST-JANAF, Chase 1998: H2 8468, N2 8670, O2 8683 J/mol; recalled from
+#: memory). pycalphad reads these fields but computes nothing from them (only the masses enter W and PPM).
+GAS_ELEMENT_DATA = {"H": _gas_element("H", "H2", 1.008, 8468.0), "N": _gas_element("N", "N2", 14.007, 8670.0),
+                    "O": _gas_element("O", "O2", 15.999, 8683.0)}
+
+
+def _element_data(ldb: Any, names: list[str]) -> dict[str, tuple[str, float, float, float]]:
+    """ELEMENT data of `names` from the database; H, N and O it lacks from `GAS_ELEMENT_DATA`."""
+    from solubility.databases.reader import element_data
+
+    held = {e.upper() for e in ldb.db.elements}
+    missing = [n for n in names if n.upper() not in held and n.upper() in GAS_ELEMENT_DATA]
+    out = element_data(ldb, [n for n in names if n not in missing])
+    out.update({n: GAS_ELEMENT_DATA[n.upper()] for n in missing})
+    return out
 
 
 def _source_text(ldb: Any) -> str:
@@ -66,7 +91,7 @@ def model_database_text(
         info: ``copied_from``, and after a site-ratio change ``conversion`` with ``c_old``, ``c_new`` and
         ``mu_shift_J_per_mol`` {x: change of mu_X at that mole fraction, J/mol}.
     """
-    from solubility.databases.reader import check_phases, element_data, load_database
+    from solubility.databases.reader import check_phases, load_database
 
     ldb = load_database(base if base is not None else source)
     text = _source_text(ldb)
@@ -99,5 +124,5 @@ def model_database_text(
     params.update(given)
     if base is not None:
         return extend_tdb(text, model, params, base_name=ldb.name), info
-    elements = element_data(ldb, [*model.hosts, *model.interstitials])
+    elements = _element_data(ldb, [*model.hosts, *model.interstitials])
     return standalone_tdb(model, params, elements=elements, source_text=text, source_name=ldb.name), info

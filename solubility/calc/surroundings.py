@@ -29,7 +29,8 @@ from solubility.calc.host import DF_TOL
 from solubility.errors import InputError
 from solubility.thermo.gas import P0, Atmosphere, R, atmosphere_potential, element_gas_reference
 
-__all__ = ["Surroundings", "UptakeLine", "UptakePoint", "compute_uptake", "solute_potential", "stability_limit"]
+__all__ = ["Surroundings", "UptakeLine", "UptakePoint", "compute_uptake", "host_contents", "solute_potential",
+           "stability_limit"]
 
 #: searched range of the solute's site fraction (as the solvus engine)
 Y_MIN, Y_MAX = 1e-30, 1.0 - 1e-9
@@ -162,7 +163,8 @@ def _open_host(database, phase, solute, *, exclude, fix, pressure, balance):
     """Validate the host request and bind its compiled system (`solubility.calc.host.HostRequest`)."""
     from solubility.calc.host import prepare_host
 
-    return prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    return prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
+                        need_partner=False)
 
 
 class _Host:
@@ -308,6 +310,24 @@ def compute_uptake(job, potential: _Potential, temperatures: Sequence[float]) ->
     sysm = job.system
     return UptakeLine(tuple(points), job.host, tuple(sysm.elements), np.asarray(sysm.molar_masses),
                       tuple(job.candidates), sysm.phases[job.phase].moles, potential, host.skipped)
+
+
+def host_contents(job, potential: _Potential, temperatures: Sequence[float],
+                  start: Sequence[float] | None = None) -> np.ndarray:
+    """ln y of the solute in the host at the surroundings' potential, without the check of other phases.
+
+    The solve of `compute_uptake` alone (the forward model of a fit): nan where there is no solution in the
+    searched range. `start` gives ln y to start each solve from (a previous solution); default ln 1e-6.
+    """
+    host = _Host(job)
+    k = job.system.elements.index(job.solute)
+    T_all = np.asarray(temperatures, dtype=float)
+    out = np.full(T_all.size, np.nan)
+    for i, T in enumerate(T_all):
+        s0 = math.log(1e-6) if start is None or not math.isfinite(start[i]) else float(start[i])
+        s, _ = _solve_s(host, k, potential(float(T))[0], float(T), s0)
+        out[i] = math.nan if s is None else s
+    return out
 
 
 def _check(host: _Host, job, T, s, target, activity, derived, prev) -> UptakePoint:
