@@ -15,7 +15,6 @@ to the same data, so only differences between models mean anything).
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -130,8 +129,7 @@ class Forward:
     def bind(self, theta: Sequence[float]) -> Any:
         """The host request with the parameter values `theta` bound (compiles nothing)."""
         params = dict(zip(self.names, (float(t) for t in theta), strict=True))
-        system = self.req.system.compiled.bind(self.req.pressure, params)
-        return dataclasses.replace(self.req, system=system, parameters=params)
+        return self.req.rebound(parameters=params)
 
     def lnx(self, theta: Sequence[float]) -> np.ndarray:
         """ln x at every point (nan where the model has no number: no solvus, no solution)."""

@@ -16,6 +16,7 @@ state that set the potentials.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import types
 import warnings
@@ -127,6 +128,21 @@ class HostRequest:
     def others(self) -> tuple[str, ...]:
         """Every candidate except the host."""
         return tuple(p for p in self.candidates if p != self.phase)
+
+    def rebound(self, *, pressure: float | None = None, parameters: Mapping[str, float] | None = None) -> HostRequest:
+        """The same request at another pressure (Pa) or other values of its free parameters; compiles nothing.
+
+        Every part that holds the bound system (the system itself and the partner view) is bound anew, so a
+        fit that changes a parameter's value changes it for the host and every candidate alike.
+        """
+        from solubility.calc.inputs import check_parameters, check_pressure
+
+        p = self.pressure if pressure is None else check_pressure(pressure)
+        params = dict(self.parameters) if parameters is None else check_parameters(parameters)
+        system = self.system.compiled.bind(p, params)
+        view = None if self.view is None else self.view.rebound(system)
+        return dataclasses.replace(self, pressure=p, parameters=types.MappingProxyType(params), system=system,
+                                   view=view)
 
 
 def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = (),

@@ -55,6 +55,7 @@ class PartnerView:
 
     def __init__(self, system, host: str, family: Sequence[str], ordering: Mapping[str, Sequence[int]],
                  disordered: Mapping[str, str]) -> None:
+        self._args = (host, tuple(family), dict(ordering), dict(disordered))
         self.system = system
         self.elements = system.elements
         self.molar_masses = system.molar_masses
@@ -68,6 +69,10 @@ class PartnerView:
         self.disordered = dict(disordered)
         self._spread_idx = {p: _spread_index(system.phases[p], ordering[p]) for p in ordering if p in system.phases}
         self.host_x: np.ndarray | None = None
+
+    def rebound(self, system) -> PartnerView:
+        """The same view over another binding of the same compiled system (new pressure or parameter values)."""
+        return PartnerView(system, *self._args)
 
     # ---------------------------------------------------------------- delegation
     def underlying(self, label: str) -> str:
