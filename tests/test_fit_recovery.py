@@ -70,7 +70,7 @@ def test_bad_data_files_one_line_exit_2(tmp_path, capsys, content, free, message
     path = tmp_path / "bad.csv"
     path.write_text(content, encoding="utf-8")
     code = main(["fit", str(path), "--database", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--free", free,
-                 "--start", "A=300000", "--start", "B=70", "--exclude", *EXCLUDE])
+                 "--start", "A=300000", "--start", "B=70", "--exclude", ",".join(EXCLUDE)])
     err = capsys.readouterr().err
     assert code == 2
     assert message in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
@@ -79,7 +79,8 @@ def test_bad_data_files_one_line_exit_2(tmp_path, capsys, content, free, message
 def test_cli_json_and_plot(tmp_path, capsys):
     plot = tmp_path / "fit.png"
     code = main(["fit", str(DATA), "--database", "fe-c", "--phase", "BCC_A2", "--solute", "C", "--free", FREE,
-                 "--start", "A=300000", "--start", "B=70", "--exclude", *EXCLUDE, "--json", "--plot", str(plot)])
+                 "--start", "A=300000", "--start", "B=70", "--exclude", ",".join(EXCLUDE),
+                 "--json", "--plot", str(plot)])
     assert code == 0
     d = json.loads(capsys.readouterr().out)
     assert d["parameters"]["A"]["value"] == pytest.approx(A_TRUE, rel=1e-6)

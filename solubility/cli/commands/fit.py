@@ -23,6 +23,7 @@ from __future__ import annotations
 import argparse
 
 from solubility.cli.commands._common import emit_json
+from solubility.cli.commands.solvus import _names
 
 
 def _named(text: str) -> tuple[str, str]:
@@ -42,8 +43,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="starting value of a free symbol (default 0; repeatable)")
     parser.add_argument("--bounds", action="append", default=[], type=_named, metavar="NAME=LOW:HIGH",
                         help="bounds of a free symbol (repeatable)")
-    parser.add_argument("--exclude", nargs="+", action="extend", default=[], metavar="PHASE",
-                        help="phases that may not appear")
+    parser.add_argument("--exclude", action="append", default=[], type=_names, metavar="PHASE[,PHASE...]",
+                        help="phases that may not appear: --exclude A,B or --exclude A --exclude B")
     parser.add_argument("--pressure", default="101325", metavar="PA", help="pressure, Pa (default 101325)")
     parser.add_argument("--site", action="append", default=[], metavar="KIND[:BLOCKING]",
                         help="fit under this site choice (repeat to compare several)")
@@ -90,7 +91,8 @@ def run(args: argparse.Namespace) -> int:
     for n, v in args.bounds:
         lo, _, hi = v.partition(":")
         bounds[n] = (_float(n, lo), _float(n, hi))
-    common = dict(start=start, bounds=bounds, exclude=args.exclude, pressure=_float("--pressure", args.pressure))
+    common = dict(start=start, bounds=bounds, exclude=[n for group in args.exclude for n in group],
+                  pressure=_float("--pressure", args.pressure))
     comparison = None
     if args.site:
         comparison = fit_sites(args.data, args.database, args.phase, args.solute, args.free, args.site,
