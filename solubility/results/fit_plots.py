@@ -76,11 +76,24 @@ def plot_fit(result: Any, ax: Any = None, band: Any = None, labels: Sequence[str
                                                                                 strict=True)), fontsize=9)
     top.legend(fontsize=7)
     secondary = top.secondary_xaxis("top", functions=(_inverse, _inverse))
+    secondary.set_xticks(_temperature_ticks(*top.get_xlim()))
     secondary.set_xlabel("T (K)")
     bottom.axhline(0.0, color="0.6", lw=0.8)
-    bottom.set_xlabel("1000 / T (1/K)")
+    bottom.set_xlabel("10³ K / T")
     bottom.set_ylabel("ln x fitted - ln x")
     return ax
+
+
+def _temperature_ticks(lo: float, hi: float) -> list[float]:
+    """Round temperatures (K) for the top axis, at least 9 % of the axis apart in 10^3 K / T (no overlap)."""
+    candidates = [200, 250, 300, 400, 500, 600, 700, 800, 1000, 1200, 1500, 2000, 2500, 3000]
+    span = abs(hi - lo) or 1.0
+    kept: list[float] = []
+    for T in sorted(candidates):  # high 1/T first: the crowded end of the axis is at high T
+        pos = 1000.0 / T
+        if min(lo, hi) <= pos <= max(lo, hi) and all(abs(pos - 1000.0 / k) >= 0.09 * span for k in kept):
+            kept.append(float(T))
+    return kept
 
 
 def _inverse(v: Any) -> Any:
