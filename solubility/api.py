@@ -232,7 +232,8 @@ def surface_map(database, phase: str, solute: str, temperatures, *, phases: Sequ
     from solubility.results.surface_dataset import build_surface_dataset
 
     T = parse_temperatures(temperatures, celsius=celsius)
-    host = prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    host = prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
+                        partners_required=False)
     names = [host.phase]
     for p in phases or ():
         name = str(p).strip().upper()
@@ -243,7 +244,7 @@ def surface_map(database, phase: str, solute: str, temperatures, *, phases: Sequ
         warnings.simplefilter("ignore", UserWarning)
         for name in names[1:]:
             jobs[name] = prepare_host(host.database, name, solute, exclude=exclude, fix=fix, pressure=pressure,
-                                      balance=host.balance)
+                                      balance=host.balance, partners_required=False)
     sol = host.solute
     quantity = quantity or ("K_N" if sol == "N" else "p_X2" if sol in ("H", "O") else "activity")
     pot = solute_potential(host.database, sol, Surroundings("activity", 1.0), host.pressure)

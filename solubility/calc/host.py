@@ -131,7 +131,7 @@ class HostRequest:
 
 def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
                  fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
-                 parameters: Mapping[str, float] | None = None) -> HostRequest:
+                 parameters: Mapping[str, float] | None = None, partners_required: bool = True) -> HostRequest:
     """Validate a host request and bind the compiled system it needs.
 
     Parameters
@@ -153,6 +153,8 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
     parameters
         Values of database symbols left free at compile time (name -> value), e.g. a parameter being fitted.
         A new value does not compile anything.
+    partners_required
+        Refuse a host with no other candidate phase (a solvus needs one; uptake does not).
 
     Raises
     ------
@@ -165,7 +167,7 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
     from solubility.thermo.system import compiled_system
 
     chk = check_request(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
-                        parameters=parameters)
+                        parameters=parameters, partners_required=partners_required)
     ldb = chk.database
     key = None if ldb.sha256 is None else f"sha256:{ldb.sha256}"
     compiled = compiled_system(ldb.db, chk.elements, chk.candidates, [n for n, _ in chk.parameters], key=key)

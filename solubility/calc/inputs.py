@@ -157,8 +157,11 @@ def host_elements(ldb, phase: str, solute: str, fix: dict[str, float], balance: 
 
 def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] = (),
                   fix: Mapping[str, float] | None = None, pressure: float = 101325.0,
-                  balance: str | None = None, parameters: Mapping[str, float] | None = None) -> CheckedRequest:
+                  balance: str | None = None, parameters: Mapping[str, float] | None = None,
+                  partners_required: bool = True) -> CheckedRequest:
     """Check a host request against its database: phase, solute, excluded phases, fix, pressure, balance.
+
+    A solvus needs a partner phase (`partners_required`); uptake from the surroundings does not.
 
     Raises
     ------
@@ -205,7 +208,7 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
     if missing:
         raise InputError(f"host phase {phase} has no {', '.join(missing)} in the database (pycalphad would take "
                          "it as zero); add the parameter or choose another host")
-    if len(candidates) < 2:
+    if partners_required and len(candidates) < 2:
         raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
                          f"{', '.join(excluded) or 'nothing'} is excluded")
     notes = list(choice.warnings)

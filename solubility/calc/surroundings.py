@@ -162,7 +162,8 @@ def _open_host(database, phase, solute, *, exclude, fix, pressure, balance):
     """Validate the host request and bind its compiled system (`solubility.calc.host.HostRequest`)."""
     from solubility.calc.host import prepare_host
 
-    return prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
+    return prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
+                        partners_required=False)
 
 
 class _Host:

@@ -6,6 +6,7 @@ Plot functions take Datasets and ``ax=None`` and return the axes; they never cal
 from __future__ import annotations
 
 import math
+import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -117,8 +118,9 @@ def uptake_figure(datasets, *, units: str = "wt%", temperature: str = "C", limit
         plot_surface_map(limit, axes[0, 1], quantity=quantity, temperature=temperature)
     first = datasets[0] if isinstance(datasets, list | tuple) else datasets
     sha = str(first.attrs.get("database_sha256", ""))[:12]
-    fig.text(0.5, -0.01, f"database {first.attrs.get('database')} (sha256 {sha}...); gas data: "
-                         f"{first.attrs.get('gas_data_source', '')[:90]}. {CAUTION}", fontsize=6, color="0.35",
+    source = textwrap.shorten(str(first.attrs.get("gas_data_source", "")), 100)
+    fig.text(0.5, -0.01, f"database {first.attrs.get('database')} (sha256 {sha}...); gas data: {source}. {CAUTION}",
+             fontsize=6, color="0.35",
              va="top", ha="center", wrap=True)
     return fig
 
