@@ -31,6 +31,7 @@ _EXPORTS = {
     "bundled_databases": "databases.bundled",
     "solvus": "api",
     "uptake": "api",
+    "surface_map": "api",
     "reduce_database": "databases.reduce",
     "write_tdb": "databases.reduce",
     "sweep": "sweeps",

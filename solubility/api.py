@@ -12,7 +12,7 @@ from collections.abc import Callable, Mapping, Sequence
 from solubility.calc.inputs import MAX_TEMPERATURES
 from solubility.errors import InputError
 
-__all__ = ["fit", "fit_band", "fit_sites", "solvus", "uptake"]
+__all__ = ["fit", "fit_band", "fit_sites", "solvus", "surface_map", "uptake"]
 
 
 def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence[str] = (),
@@ -230,7 +230,7 @@ def uptake(database, phase: str, solute: str, temperatures, *, activity: float |
            reference: str | None = None, partial_pressure: float | None = None, atmosphere=None,
            equilibrate_gas: bool = False, exclude: Sequence[str] = (), fix: Mapping[str, float] | None = None,
            pressure: float = 101325.0, balance: str | None = None, celsius: bool = False,
-           sieverts_range: tuple[float, float] | None = None):
+           sieverts_range: tuple[float, float] | None = None, progress: Callable[[float], None] | None = None):
     """Solute content of the host `phase` in equilibrium with its surroundings, against temperature.
 
     Give exactly one of `activity`, `partial_pressure` or `atmosphere`.
@@ -264,6 +264,8 @@ def uptake(database, phase: str, solute: str, temperatures, *, activity: float |
         on the host, the host's balance element.
     sieverts_range
         (T_min, T_max), K, over which the apparent enthalpy of solution is fitted (partial pressure only).
+    progress
+        Called with each temperature (K) before it is solved (a progress bar); it may raise to stop the line.
 
     Returns
     -------
@@ -290,5 +292,86 @@ def uptake(database, phase: str, solute: str, temperatures, *, activity: float |
         sieverts_range = (lo, hi)
     job = _open_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance)
     potential = solute_potential(job.database, job.solute, sur, job.pressure)
-    line = compute_uptake(job, potential, T)
+    line = compute_uptake(job, potential, T, progress=progress)
     return build_uptake_dataset(line, job, sur, sieverts_range=sieverts_range)
+
+
+def surface_map(database, phase: str, solute: str, temperatures, *, phases: Sequence[str] | None = None,
+                quantity: str | None = None, limits: tuple[float, float] | None = None, exclude: Sequence[str] = (),
+                fix: Mapping[str, float] | None = None, pressure: float = 101325.0, balance: str | None = None,
+                celsius: bool = False, points: int = 48, progress: Callable[[float], None] | None = None):
+    """The stable phase at the surface against the solute's potential and temperature, from exact boundaries.
+
+    The metal is conserved and the solute exchanged with the surroundings: at each temperature the map phases
+    are compared by their grand potential per mole of metal, and each change of the stable phase is solved as an
+    exact two-phase equilibrium (`solubility.calc.surface`). For nitrogen on a steel database with the phases
+    ferrite, austenite, Fe4N and epsilon this is the nitriding map in K_N against temperature.
+
+    Parameters
+    ----------
+    database, phase, solute, temperatures, exclude, fix, pressure, balance, celsius
+        As for `uptake`; `phase` is the host (the first map phase).
+    phases
+        Further map phases, each a (hosts)a(X,VA)c solution of the same metal with the solute (for example
+        FCC_A1, FE4N_LP10, HCP_A3). Every other candidate is checked inside each interval and named in ``forms``.
+    quantity
+        The potential axis: "activity" (against the element's reference state), "p_X2" (equivalent pressure of
+        the diatomic gas, Pa; H, N, O) or "K_N" (nitriding potential, atm^-1/2; N). Default: K_N for N, p_X2 for H
+        and O, activity otherwise.
+    limits
+        (low, high) of the axis, in its units. Default: K_N 1e-3..1e2, p_X2 1e2..1e10 Pa, activity 1e-4..1e2.
+    points
+        Grid points in ln a that bracket the boundaries (8 to 2000); the boundaries themselves are exact.
+    progress
+        Called with each temperature (K) before it is mapped.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``T`` and ``region``: phase, forms, lower, upper (axis units), lower_activity, upper_activity
+        (`solubility.results.surface_dataset`).
+    """
+    import math
+    import warnings
+
+    from solubility.calc.host import prepare_host
+    from solubility.calc.inputs import parse_temperatures
+    from solubility.calc.surface import QUANTITIES, quantity_axis, surface_columns
+    from solubility.calc.surroundings import Surroundings, solute_potential
+    from solubility.results.surface_dataset import build_surface_dataset
+
+    T = parse_temperatures(temperatures, celsius=celsius)
+    host = prepare_host(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
+                        need_partner=False)
+    names = [host.phase]
+    for p in phases or ():
+        name = str(p).strip().upper()
+        if name and name not in names:
+            names.append(name)
+    jobs = {host.phase: host}
+    with warnings.catch_warnings():  # the database's notes were given once, for the host
+        warnings.simplefilter("ignore", UserWarning)
+        for name in names[1:]:
+            jobs[name] = prepare_host(host.database, name, solute, exclude=exclude, fix=fix, pressure=pressure,
+                                      balance=host.balance, need_partner=False)
+    sol = host.solute
+    quantity = quantity or ("K_N" if sol == "N" else "p_X2" if sol in ("H", "O") else "activity")
+    pot = solute_potential(host.database, sol, Surroundings("activity", 1.0), host.pressure)
+    to_ln_a, from_ln_a = quantity_axis(sol, quantity, pot.ref_gibbs)
+    default = {"K_N": (1e-3, 1e2), "p_X2": (1e2, 1e10), "activity": (1e-4, 1e2)}[quantity]
+    try:
+        lo, hi = (float(v) for v in (limits if limits is not None else default))
+    except (TypeError, ValueError):
+        raise InputError(f"limits {limits!r} is not (low, high) of the {quantity} axis") from None
+    if not (math.isfinite(lo) and math.isfinite(hi) and 0 < lo < hi):
+        raise InputError(f"limits {limits!r} must satisfy 0 < low < high (finite)")
+    if not 8 <= int(points) <= 2000:
+        raise InputError(f"points {points!r} is not accepted; give 8 to 2000")
+    fixed = dict(host.fix)
+    weights = {**fixed, host.balance: 1.0 - sum(fixed.values())}
+    columns = surface_columns(jobs, weights, pot.ref_gibbs, T, lambda t: (to_ln_a(t, lo), to_ln_a(t, hi)),
+                              points=int(points), progress=progress)
+    units, long_name = QUANTITIES[quantity]
+    return build_surface_dataset(columns, host, quantity=quantity, units=units,
+                                 long_name=long_name.format(X=sol, ref=pot.ref_text), from_ln_a=from_ln_a,
+                                 reference=pot.ref_text, gas_source=pot.gas_source, map_phases=names)

@@ -280,8 +280,11 @@ def _solve_s(host: _Host, k: int, target: float, T: float, s0: float) -> tuple[f
     return None, "the potential solve did not converge"
 
 
-def compute_uptake(job, potential: _Potential, temperatures: Sequence[float]) -> UptakeLine:
-    """The uptake at each temperature (K, any order; the result keeps it) on a prepared host `job`."""
+def compute_uptake(job, potential: _Potential, temperatures: Sequence[float], *, progress=None) -> UptakeLine:
+    """The uptake at each temperature (K, any order; the result keeps it) on a prepared host `job`.
+
+    `progress`, if given, is called with each temperature before it is solved (it may raise to stop the line).
+    """
     host = _Host(job)
     k = job.system.elements.index(job.solute)
     T_all = np.asarray(temperatures, dtype=float)
@@ -289,6 +292,8 @@ def compute_uptake(job, potential: _Potential, temperatures: Sequence[float]) ->
     prev: UptakePoint | None = None
     for i in np.argsort(T_all, kind="stable"):
         T = float(T_all[i])
+        if progress is not None:
+            progress(T)
         nan_mu = np.full(len(job.system.elements), np.nan)
         try:
             target, activity, derived = potential(T)

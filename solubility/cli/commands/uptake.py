@@ -13,6 +13,8 @@ engineering practice take precedence.
 examples:
   solubility uptake fe-c --phase FCC_A1 --solute C --temperatures 1100:1300:50 --activity 0.5
   solubility uptake steel --phase BCC_A2 --solute N --temperatures 773:873:25 --atmosphere NH3=0.3e5,H2=0.7e5
+  solubility uptake steel --phase BCC_A2 --solute N --balance FE --temperatures 723:973:25 \\
+      --atmosphere NH3=0.3e5,H2=0.7e5 --map nitriding-map.png --map-phases FCC_A1,FE4N_LP10,HCP_A3
 """
 
 from __future__ import annotations
@@ -56,19 +58,47 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="composition unit of the figure (default wt%%)")
     parser.add_argument("--plot-temperature", default="C", choices=["C", "K"],
                         help="temperature unit of the figure (default C)")
+    parser.add_argument("--map", metavar="FILE",
+                        help="also write the map of the stable phase at the surface against the potential and "
+                             "temperature (exact boundaries; .png, .pdf or .svg), with this line drawn across it")
+    parser.add_argument("--map-phases", type=_names, default=[], metavar="PHASE[,PHASE...]",
+                        help="further phases of the map, e.g. FCC_A1,FE4N_LP10,HCP_A3 (default: the host alone)")
+    parser.add_argument("--map-range", metavar="LOW:HIGH",
+                        help="range of the map's axis: K_N (atm^-1/2) for N, p(X2) (Pa) for H and O, else activity")
     parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
-def _range(text: str | None):
+def _range(text: str | None, option: str = "--sieverts-range", what: str = "TMIN:TMAX in K"):
     if text is None:
         return None
     parts = text.split(":")
     try:
         lo, hi = (float(p) for p in parts)
     except ValueError:
-        raise InputError(f"--sieverts-range {text!r} is not TMIN:TMAX in K") from None
+        raise InputError(f"{option} {text!r} is not {what}") from None
     return lo, hi
+
+
+class _Bar:
+    """A progress bar on standard error for long lines (only on a terminal, not with --quiet)."""
+
+    def __init__(self, args, count: int, desc: str) -> None:
+        self.bar = None
+        if not args.quiet and sys.stderr.isatty() and count > 1:
+            from tqdm import tqdm
+
+            # shown only once the line has taken a second, so quick lines stay quiet
+            self.bar = tqdm(total=count, unit="T", desc=desc, file=sys.stderr, delay=1.0, leave=False)
+
+    def __call__(self, _T: float) -> None:
+        if self.bar is not None:
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
 
 
 def _table(ds) -> str:
@@ -106,8 +136,9 @@ def _table(ds) -> str:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from solubility import uptake
+    from solubility import surface_map, uptake
     from solubility._io import atomic_outputs
+    from solubility.calc.inputs import parse_temperatures
     from solubility.results.dataset import netcdf_bytes
     from solubility.results.uptake_dataset import uptake_csv_text, uptake_json
 
@@ -116,12 +147,41 @@ def run(args: argparse.Namespace) -> int:
     except ValueError:
         raise InputError(f"--pressure {args.pressure!r} is not a number of Pa") from None
     outs = _outputs(args)
-    ds = uptake(args.database, args.phase, args.solute, args.temperatures, activity=args.activity,
-                reference=args.reference, partial_pressure=args.partial_pressure, atmosphere=args.atmosphere,
-                equilibrate_gas=args.equilibrate_gas, exclude=[n for group in args.exclude for n in group],
-                fix=_fix_map(args.fix),
-                pressure=pressure, balance=args.balance, celsius=args.celsius,
-                sieverts_range=_range(args.sieverts_range))
+    if args.map:
+        from solubility._io import check_outputs
+
+        if not args.map.lower().endswith((".png", ".pdf", ".svg")):
+            raise InputError(f"--map {args.map!r} must end in .png, .pdf or .svg")
+        if any(Path(args.map).resolve() == Path(p).resolve() for _, p in outs):
+            raise InputError(f"--map {args.map!r} is also another output")
+        check_outputs([args.map], inputs=[], overwrite=args.overwrite)
+    map_range = _range(args.map_range, "--map-range", "LOW:HIGH (two positive numbers)")
+    T = parse_temperatures(args.temperatures, celsius=args.celsius)
+    exclude = [n for group in args.exclude for n in group]
+    bar = _Bar(args, T.size * (2 if args.map else 1), "uptake")
+    try:
+        ds = uptake(args.database, args.phase, args.solute, T, activity=args.activity,
+                    reference=args.reference, partial_pressure=args.partial_pressure, atmosphere=args.atmosphere,
+                    equilibrate_gas=args.equilibrate_gas, exclude=exclude, fix=_fix_map(args.fix),
+                    pressure=pressure, balance=args.balance, sieverts_range=_range(args.sieverts_range),
+                    progress=bar)
+        surface = None
+        if args.map:
+            import warnings
+
+            with warnings.catch_warnings():  # the database's notes were given once, for the uptake line
+                warnings.simplefilter("ignore", UserWarning)
+                surface = surface_map(args.database, args.phase, args.solute, T, phases=args.map_phases,
+                                      limits=map_range, exclude=exclude, fix=_fix_map(args.fix),
+                                      pressure=pressure, balance=args.balance, progress=bar)
+    finally:
+        bar.close()
+    if surface is not None:
+        from solubility.results.uptake_plots import surface_figure_bytes
+
+        outs.append(("map", args.map))
+        map_image = surface_figure_bytes(surface, Path(args.map).suffix.lower().lstrip("."),
+                                         temperature=args.plot_temperature, lines=[ds])
     with atomic_outputs() as files:  # all outputs or none
         for kind, path in outs:
             if kind == "csv":
@@ -129,6 +189,8 @@ def run(args: argparse.Namespace) -> int:
             elif kind == "netcdf":
                 data = netcdf_bytes(ds)
                 files.write(path, lambda tmp, data=data: Path(tmp).write_bytes(data))
+            elif kind == "map":
+                files.write(path, lambda tmp, data=map_image: Path(tmp).write_bytes(data))
             else:
                 from solubility.results.uptake_plots import uptake_figure_bytes
 
