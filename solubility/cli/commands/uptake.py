@@ -20,6 +20,7 @@ examples:
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 
 from solubility.cli.commands._common import emit_json
@@ -102,6 +103,10 @@ class _Bar:
 
 
 def _table(ds) -> str:
+    import numpy as np
+
+    from solubility.results.table import column
+
     a = ds.attrs
     lines = [f"uptake of {a['solute']} by {a['phase']} from {a['surroundings_value']}  (database {a['database']}, "
              f"sha256 {a['database_sha256'][:12]}...)",
@@ -112,19 +117,27 @@ def _table(ds) -> str:
     name = ds["derived"].attrs["long_name"] if "derived" in ds else ""
     short = "K_N/atm^-.5" if "K_N" in name else "a_C" if "carbon activity" in name else name.split(",")[0][:12]
     head = {"derived": short, "KS_CM3": "K_S cm3/100g/atm^.5"}.get(extra, "")
-    lines.append(f"{'T/K':>9} {'T/C':>8} {'x':>12} {'wt%':>11} {'ppm':>11} {'activity':>10}"
-                 + (f" {head:>12}" if extra else "") + "  status / note")
+    has = np.isin(ds["status"].values, ("ok", "metastable"))
+    cols = {k: column(np.where(has, v, np.nan)) for k, v in (("x", ds["X"].values), ("wt%", 100 * ds["W"].values),
+                                                            ("ppm", ds["PPM"].values))}
+    cols["activity"] = column(ds["activity"].values)
+    cols["extra"] = column(ds[extra].values) if extra else [""] * ds.sizes["T"]
+    width = {k: max(len(k), *(len(s) for s in v)) for k, v in cols.items() if k != "extra"}
+    width["extra"] = max(len(head), *(len(s) for s in cols["extra"])) if extra else 0
+    lines.append(f"{'T/K':>9} {'T/C':>8} " + " ".join(f"{k:>{width[k]}}" for k in ("x", "wt%", "ppm", "activity"))
+                 + (f" {head:>{width['extra']}}" if extra else "") + "  status / note")
     for i in range(ds.sizes["T"]):
         T, st = float(ds["T"].values[i]), str(ds["status"].values[i])
-        tail = f" {ds[extra].values[i]:12.4g}" if extra else ""
-        if st in ("ok", "metastable"):
-            note = "ok" if st == "ok" else f"[metastable] {ds['forms_instead'].values[i].replace('+', ', ')} forms"
-            lines.append(f"{T:9.2f} {T - ZERO_CELSIUS:8.2f} {ds['X'].values[i]:12.5e} {100 * ds['W'].values[i]:11.5e} "
-                         f"{ds['PPM'].values[i]:11.4g} {ds['activity'].values[i]:10.4g}{tail}  {note}")
+        row = " ".join(f"{cols[k][i]:>{width[k]}}" for k in ("x", "wt%", "ppm", "activity"))
+        row += f" {cols['extra'][i]:>{width['extra']}}" if extra else ""
+        if st == "ok":
+            note = "ok"
+        elif st == "metastable":
+            note = f"[metastable] {ds['forms_instead'].values[i].replace('+', ', ')} forms"
         else:
-            lines.append(f"{T:9.2f} {T - ZERO_CELSIUS:8.2f} {'-':>12} {'-':>11} {'-':>11} "
-                         f"{ds['activity'].values[i]:10.4g}{tail}  [{st}] {ds['reason'].values[i]}")
-    if "sieverts_enthalpy_J_per_mol" in a:
+            note = f"[{st}] {ds['reason'].values[i]}"
+        lines.append(f"{T:9.2f} {T - ZERO_CELSIUS:8.2f} {row}  {note}")
+    if "sieverts_enthalpy_J_per_mol" in a and math.isfinite(float(a["sieverts_enthalpy_J_per_mol"])):
         lines.append(f"apparent enthalpy of solution (1/2 {a['solute']}2 -> {a['solute']}): "
                      f"{a['sieverts_enthalpy_J_per_mol'] / 1000:.2f} kJ/mol over {a['sieverts_fit_range_K']} "
                      f"({a['sieverts_fit_points']} points)")
