@@ -29,7 +29,7 @@ import math
 
 import numpy as np
 
-__all__ = ["CSV_COLUMNS", "field_end_lines", "lower_json", "lower_lines", "lower_variables"]
+__all__ = ["CSV_COLUMNS", "field_end_lines", "lower_json", "lower_lines", "lower_runs", "lower_variables"]
 
 #: the CSV columns of the lower end (after the solvus's own)
 CSV_COLUMNS = ["X_LOW", "W_LOW", "WT%_LOW", "PPM_LOW", "Y_LOW", "partner_low", "status_low", "reason_low"]
@@ -155,3 +155,20 @@ def field_end_lines(ds, composition, temperature) -> list[str]:
         out.append(f"the {phase} field {kind} (with rising temperature) at {temperature(float(Tf))}, meeting "
                    f"{meets}{where}")
     return out
+
+
+def lower_runs(ds) -> list[tuple[str, np.ndarray]]:
+    """Runs of consecutive (by temperature) lower ends with a number and one partner: (partner, indices), each
+    run sorted by temperature (the dashed lines of the figure)."""
+    if "status_low" not in ds:
+        return []
+    status, partner = ds["status_low"].values, ds["partner_low"].values
+    runs: list[tuple[str, list[int]]] = []
+    for i in np.argsort(ds["T"].values, kind="stable"):
+        if status[i] != "ok":
+            runs.append(("", []))
+        elif runs and runs[-1][0] == str(partner[i]) and runs[-1][1]:
+            runs[-1][1].append(int(i))
+        else:
+            runs.append((str(partner[i]), [int(i)]))
+    return [(p, np.array(idx, dtype=int)) for p, idx in runs if idx]
