@@ -10,9 +10,10 @@ the host takes up solute), from a bracket found by walking down the cold scan's 
 
 Where the two ends meet (the eutectoid for austenite: ferrite, austenite and cementite coexist) the field closes.
 That temperature is located, as a change of partner is, by bisection in temperature to `T_TOL`: on the field's
-side the lower partner's driving force at the upper boundary is negative, beyond it positive. A field that
-closes without a lower end (the upper end falling to zero content) is located by bisection on whether a cold
-solve finds a field.
+side the lower partner's driving force at the upper boundary is negative, beyond it positive. A field without a
+lower end opens or closes at zero solute content (austenite of an alloy at its A3 temperature): located by
+bisection on whether the host is stable at the smallest content searched; its composition there is reported as
+not a number (zero, below the searched range) and the phase that replaces the host is named.
 """
 
 from __future__ import annotations
@@ -128,13 +129,12 @@ class LowerEnds:
                 return e.df(alpha, e.mu(sol[0], T), T, y_alpha).value < 0, sol[0]
 
             partners = (alpha, beta)
-        else:
+        else:  # no lower end: the field opens or closes at zero solute content, where the host is stable
             def inside(T: float) -> tuple[bool, float]:
-                point = e.cold(T)
-                return point.status in _FIELD, point.s
+                return e.max_df(self.s_min, T, quick=True)[0] < 0, math.nan
 
-            partners = upper.partners
-        T_in, s_in = upper.T, upper.s
+            partners = ()
+        T_in, s_in = upper.T, upper.s if partners else math.nan
         if not inside(T_in)[0]:
             return FieldEnd(math.nan, kind, partners)
         while abs(T_out - T_in) > self.t_tol:
@@ -144,4 +144,6 @@ class LowerEnds:
                 T_in, s_in = mid, s
             else:
                 T_out = mid
+        if not partners:  # the phase that replaces the host at zero solute content
+            partners = (e.max_df(self.s_min, T_out, quick=True)[1],)
         return FieldEnd(round(0.5 * (T_in + T_out), 3), kind, partners, s_in)

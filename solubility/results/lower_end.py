@@ -15,7 +15,8 @@ status_low      -       ok, no_partner (stable down to the smallest content sear
                         below_limit or failed
 reason_low      -       why the lower end has no number; "" otherwise
 field_end_T     K       temperature where the host's field opens or closes, to 0.01 K
-field_end_X     1       mole fraction of the solute in the host there (where its lower and upper ends meet)
+field_end_X     1       mole fraction of the solute in the host there (where its lower and upper ends meet; NaN
+                        where a field without a lower end opens or closes at zero solute content)
 field_end_W     1       mass fraction of the solute there
 field_end_PPM   ppm     parts per million by mass there
 field_end_kind  -       "opens" (with rising temperature the field appears) or "closes" (it disappears)
@@ -151,7 +152,7 @@ def field_end_lines(ds, composition, temperature) -> list[str]:
         if not math.isfinite(float(Tf)):
             out.append(f"the {phase} field {kind} at an unlocated temperature (meeting {meets})")
             continue
-        where = f"; {composition(float(x), float(w))}" if math.isfinite(float(x)) else ""
+        where = f"; {composition(float(x), float(w))}" if math.isfinite(float(x)) else " at zero content"
         out.append(f"the {phase} field {kind} (with rising temperature) at {temperature(float(Tf))}, meeting "
                    f"{meets}{where}")
     return out
