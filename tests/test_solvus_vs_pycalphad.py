@@ -47,7 +47,10 @@ def test_ferrite_austenite_tie_line_end():
     ds = solubility.solvus("fe-c", "BCC_A2", "C", AUSTENITE_T, exclude=["GRAPHITE", "DIAMOND_A4"])
     assert set(ds.partner.values) == {"FCC_A1"}
     ref = _tie_line_end(["BCC_A2", "FCC_A1"], AUSTENITE_T, 0.002, "BCC_A2")
-    np.testing.assert_allclose(ds.X.values, ref, rtol=1e-9, atol=0)
+    # 1e-8 here, not 1e-9: on this tie line pycalphad's own equilibrium stops with austenite's driving force at
+    # its host end about 1e-7 J/mol from zero (measured at 1100 K: its MU(C) is 1.3e-5 J/mol off the exact
+    # tangent), which moves x by up to 5e-9 relative; the tool's boundary has |DF| < 1e-11 J/mol there.
+    np.testing.assert_allclose(ds.X.values, ref, rtol=1e-8, atol=0)
 
 
 @pytest.mark.parametrize("T", [900.0, 1100.0, 1300.0])

@@ -166,7 +166,12 @@ class _Engine:
         host is declared unstable, so a single-phase field narrower than the scan spacing is still found.
         """
         grid = [float(g) for g in _SCAN]
-        scans = [self.max_df(s, T, quick=True) for s in grid]
+        scans = []
+        for s in grid:  # up to the end of the first stable run (all of it when nothing is stable)
+            scans.append(self.max_df(s, T, quick=True))
+            if scans[-1][0] >= 0 and any(f < 0 for f, _, _ in scans[:-1]):
+                break
+        grid = grid[:len(scans)]
         values = [v[:2] for v in scans]
         self.scan = (T, grid, values)  # kept for the lower end of the field (`solubility.calc.lower`)
         stable = [f < 0 for f, _ in values]

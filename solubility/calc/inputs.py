@@ -234,10 +234,13 @@ def working_database(ldb, elements: Sequence[str]):
     A model built from it equals the one built from the whole database (the reduction keeps every phase,
     constituent, parameter and FUNCTION the elements can use), and is built many times faster from a large one:
     pycalphad searches the whole parameter table for every term. Kept per process for a database read from a
-    file (keyed by its sha256); an in-memory Database, which may change, is reduced afresh.
+    file (keyed by its sha256); an in-memory Database, which may change, is reduced afresh. A database with no
+    other element is used as it is.
     """
     from solubility.databases.reduce import reduce_database
 
+    if not {str(e).upper() for e in ldb.db.elements} - {*elements, "VA", "/-"}:
+        return ldb.db  # nothing to cut away
     key = None if ldb.sha256 is None else (ldb.sha256, tuple(sorted(elements)))
     if key is not None and key in _WORK:
         _WORK.move_to_end(key)
