@@ -12,10 +12,11 @@ import warnings
 import solubility
 
 
-def test_nitrogen_in_austenite_pehlke_elliott():
-    with warnings.catch_warnings():  # pycalphad's FCC_L12 magnetic note and the database notes (as in the solvus tests)
+def test_nitrogen_in_austenite_pehlke_elliott(steel_db):
+    with warnings.catch_warnings():
+        # pycalphad's caution about FCC_L12's partitioned magnetic term (a candidate here; see databases/README.md)
         warnings.simplefilter("ignore", UserWarning)
-        ds = solubility.uptake("steel", "FCC_A1", "N", [1273.15], partial_pressure=101325.0, balance="FE")
+        ds = solubility.uptake(steel_db.db, "FCC_A1", "N", [1273.15], partial_pressure=101325.0, balance="FE")
     assert ds.status.values[0] in ("ok", "metastable")
     assert ds.attrs["gas_data_source"]
     assert abs(100 * ds.W.values[0] / 0.025 - 1) < 0.10

@@ -19,11 +19,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 
 import numpy as np
 
-from solubility.calc.host import DF_TOL, REFINE_MARGIN, HostModel, HostRequest, host_potentials, refine
+from solubility.calc.host import DF_TOL, REFINE_MARGIN, HostRequest, host_potentials, refine
+from solubility.calc.partners import partner_names, relabel
+from solubility.calc.points import BoundaryPoint, PartnerChange, SolvusLine
 from solubility.constants import R
 
 __all__ = ["BoundaryPoint", "PartnerChange", "SolvusLine", "solvus_line"]
@@ -50,76 +52,6 @@ _SCAN = np.log(np.unique(np.concatenate((
 ))))
 
 
-@dataclass(frozen=True)
-class BoundaryPoint:
-    """The solvus at one temperature.
-
-    Attributes
-    ----------
-    T
-        Temperature, K.
-    s
-        ln of the solute's site fraction in the host at the boundary (nan when there is none).
-    partners
-        Phases at zero amount on the boundary (one, or two at an invariant).
-    mu
-        Chemical potentials of the elements at the boundary, J/mol (elements order of the system).
-    status
-        "ok" (a boundary, solved and checked), "host_unstable" (the host is not stable at any solute content),
-        "below_limit" (the solubility is below the searched site fraction Y_MIN), "no_partner" (no phase limits
-        the solubility) or "failed" (the solve or its check failed).
-    reason
-        Why there is no number (or why it is not converged); "" otherwise.
-    phase_y
-        Constitution of each refined phase at its optimum at the boundary (warm starts for the next point).
-    max_other_df
-        Largest driving force of any non-partner candidate at the boundary, J/mol of atoms (must be <= 0).
-    """
-
-    T: float
-    s: float
-    partners: tuple[str, ...]
-    mu: np.ndarray
-    status: str
-    reason: str = ""
-    phase_y: Mapping[str, np.ndarray] = field(default_factory=dict)
-    max_other_df: float = float("nan")
-    partner_x: np.ndarray | None = None  # mole fractions of the (first) partner, elements order
-
-    @property
-    def valid(self) -> bool:
-        """A boundary was found and checked."""
-        return self.status == "ok"
-
-    @property
-    def converged(self) -> bool:
-        """The calculation reached a definite answer (a boundary, or a definite absence of one)."""
-        return self.status != "failed"
-
-
-@dataclass(frozen=True)
-class PartnerChange:
-    """A temperature where the partner phase changes along the line."""
-
-    T: float  # K, to T_TOL
-    below: tuple[str, ...]
-    above: tuple[str, ...]
-    s: float = float("nan")  # ln(y_solute) of the host at T (the host's corner of the three-phase triangle)
-
-
-@dataclass(frozen=True)
-class SolvusLine:
-    """Raw result of `solvus_line`: one point per requested temperature (in the order given)."""
-
-    points: tuple[BoundaryPoint, ...]
-    changes: tuple[PartnerChange, ...]
-    host: HostModel
-    elements: tuple[str, ...]
-    molar_masses: np.ndarray
-    candidates: tuple[str, ...]
-    host_moles: np.ndarray  # (n_el, ny): moles of each element per formula unit of the host = host_moles @ y
-
-
 class _Engine:
     """Boundary solver for one host request (one compiled system at one pressure and parameter set)."""
 
@@ -129,6 +61,7 @@ class _Engine:
         self.host = req.host
         self.others = tuple(p for p in self.system.phases if p != req.host.phase)
         self.margin = dict.fromkeys(self.others, REFINE_MARGIN)
+        self.scan: tuple[float, list[float], list] | None = None  # (T, ln y grid, [(F, phase)]) of the last cold
 
     # ---------------------------------------------------------------- primitives
     def mu(self, s: float, T: float) -> np.ndarray:
@@ -156,20 +89,21 @@ class _Engine:
 
     # ---------------------------------------------------------------- boundary with a known partner
     def solve_partner(self, phase: str, T: float, s0: float, y0: np.ndarray | None,
-                      bracket: tuple[float, float] | None = None):
+                      bracket: tuple[float, float] | None = None, sign: float = 1.0):
         """Solve DF_phase(mu(s)) = 0 for s by safeguarded Newton; returns (s, DrivingForce) or None.
 
         The slope dDF/ds = x_phase . dmu/ds (envelope theorem: the partner's constitution is optimal), with
-        dmu/ds from a forward difference of the host's potentials.
+        dmu/ds from a forward difference of the host's potentials. `sign` +1: DF rises with s (an upper
+        boundary, a solute-rich partner); -1: DF falls with s (a lower boundary, `solubility.calc.lower`).
         """
         lo_s, hi_s = math.log(Y_MIN), math.log(Y_MAX)
-        lo, hi = bracket if bracket is not None else (None, None)  # F(lo) < 0 < F(hi)
+        lo, hi = bracket if bracket is not None else (None, None)  # sign * F(lo) < 0 < sign * F(hi)
         s = min(max(s0, lo_s), hi_s)
         y_part = y0
         for _ in range(60):
             mu = self.mu(s, T)
             res = self.df(phase, mu, T, y_part)
-            f, y_part = res.value, res.y
+            f, y_part = sign * res.value, res.y
             if abs(f) < 1e-9:
                 break
             if f < 0:
@@ -177,7 +111,7 @@ class _Engine:
             else:
                 hi = s if hi is None or s < hi else hi
             h = 1e-6 if s + 1e-6 <= hi_s else -1e-6
-            slope = float(res.x @ (self.mu(s + h, T) - mu)) / h
+            slope = sign * float(res.x @ (self.mu(s + h, T) - mu)) / h
             step = -f / slope if slope > 0 else (2.0 if f < 0 else -2.0)
             s_new = s + max(-5.0, min(5.0, step))
             if lo is not None and hi is not None and not (lo < s_new < hi):
@@ -232,8 +166,14 @@ class _Engine:
         host is declared unstable, so a single-phase field narrower than the scan spacing is still found.
         """
         grid = [float(g) for g in _SCAN]
-        scans = [self.max_df(s, T, quick=True) for s in grid]
+        scans = []
+        for s in grid:  # up to the end of the first stable run (all of it when nothing is stable)
+            scans.append(self.max_df(s, T, quick=True))
+            if scans[-1][0] >= 0 and any(f < 0 for f, _, _ in scans[:-1]):
+                break
+        grid = grid[:len(scans)]
         values = [v[:2] for v in scans]
+        self.scan = (T, grid, values)  # kept for the lower end of the field (`solubility.calc.lower`)
         stable = [f < 0 for f, _ in values]
         if not stable[0] and self._solute_rich(scans[0]):
             # already at the smallest content searched a phase richer in solute beats the host: the boundary
@@ -349,7 +289,7 @@ class _Engine:
         return PartnerChange(round(T_star, 3), a.partners, b.partners, sol[0] if sol else float("nan"))
 
 
-def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) -> SolvusLine:
+def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None, lower: bool = True) -> SolvusLine:
     """Compute the solvus of a host request at each temperature (K).
 
     Parameters
@@ -360,61 +300,66 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None) 
         K, any order; the result keeps this order.
     hooks
         Test hook: a callable ``hooks(T)`` that may raise to inject a failure at one temperature.
+    lower
+        Also solve the lower end of the host's field and locate where the field opens or closes
+        (`solubility.calc.lower`); a fit, which needs only the solvus, leaves it out.
     """
+    from solubility.calc.lower import LowerEnds
+
     engine = _Engine(req)
+    ends_solver = LowerEnds(engine, _SCAN, Y_MIN, Y_MAX, T_TOL) if lower else None
     system, host = req.system, req.host
     T = np.asarray(temperatures, dtype=float)
     order = np.argsort(T, kind="stable")
     points: list[BoundaryPoint | None] = [None] * T.size
+    lows: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
+    field_ends: list = []
+    field_y: list[Mapping] = []  # phase constitutions at each field end (for the partners' names)
     ends: list[tuple[Mapping, Mapping]] = []  # phase constitutions of the points either side of each change
     prev: BoundaryPoint | None = None
     before: BoundaryPoint | None = None
+    last: tuple[BoundaryPoint, BoundaryPoint] | None = None  # (upper, lower) at the previous temperature
     for k in order:
         Tk = float(T[k])
+        point = low = None
         try:
             if hooks is not None:
                 hooks(Tk)
             point = engine.warm(Tk, prev, before) if prev is not None and prev.valid else engine.cold(Tk)
+            if ends_solver is not None:
+                low = ends_solver.point(Tk, point, last[1] if last is not None else None)
         except (ArithmeticError, ValueError, np.linalg.LinAlgError, RuntimeError) as exc:
-            point = BoundaryPoint(Tk, float("nan"), (), np.full(len(system.elements), np.nan), "failed",
-                                  f"solver failed: {exc}")
+            failed = BoundaryPoint(Tk, float("nan"), (), np.full(len(system.elements), np.nan), "failed",
+                                   f"solver failed: {exc}")
+            point, low = point or failed, None if ends_solver is None else failed
         if point.valid and prev is not None and prev.valid and set(point.partners) != set(prev.partners) \
                 and Tk > prev.T:
             extra = [p for p in point.partners if p not in prev.partners]
             if extra:
                 changes.append(engine.locate_change(prev, point))
                 ends.append((prev.phase_y, point.phase_y))
-        points[k] = point
+        if ends_solver is not None and last is not None and Tk > last[0].T:
+            inside = [pt.status in ("ok", "no_partner") for pt in (last[0], point)]
+            unstable = [pt.status == "host_unstable" for pt in (last[0], point)]
+            side = last if inside[0] and unstable[1] else (point, low) if unstable[0] and inside[1] else None
+            if side is not None:
+                field_ends.append(ends_solver.field_end(*side, Tk if side is last else last[0].T))
+                field_y.append({**side[0].phase_y, **side[1].phase_y})
+        points[k], lows[k] = point, low
+        last = (point, low)
         if point.valid:
             prev, before = point, prev
         elif point.status != "failed":
             prev = before = None  # the line is broken: start the next point from nothing
     view = engine.system
     if hasattr(view, "label"):
-        points = [_relabel(view, p) for p in points]
-        changes = [replace(c, below=_names(view, c.below, lo), above=_names(view, c.above, hi))
+        points = [relabel(view, p) for p in points]
+        lows = [None if p is None else relabel(view, p) for p in lows]
+        changes = [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
                    for c, (lo, hi) in zip(changes, ends, strict=True)]
+        field_ends = [replace(f, partners=partner_names(view, f.partners, y))
+                      for f, y in zip(field_ends, field_y, strict=True)]
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
-                      np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles)
-
-
-def _names(view, partners: Sequence[str], phase_y: Mapping[str, np.ndarray] | None) -> tuple[str, ...]:
-    out: list[str] = []
-    for p in partners:
-        name = view.label(p, None if phase_y is None else phase_y.get(p))
-        if name not in out:
-            out.append(name)
-    return tuple(out)
-
-
-def _relabel(view, point: BoundaryPoint) -> BoundaryPoint:
-    """The point with its partners under the names they are reported by, and the first partner's composition."""
-    if not point.partners:
-        return point
-    first = point.partners[0]
-    x = None
-    if first in point.phase_y:
-        n = view.phases[first].moles @ point.phase_y[first]
-        x = n / n.sum()
-    return replace(point, partners=_names(view, point.partners, point.phase_y), partner_x=x)
+                      np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles,
+                      tuple(lows) if lower else (), tuple(field_ends))

@@ -186,7 +186,8 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
                         parameters=parameters, need_partner=need_partner)
     ldb = chk.database
     key = None if ldb.sha256 is None else f"sha256:{ldb.sha256}"
-    compiled = compiled_system(ldb.db, chk.elements, chk.candidates, [n for n, _ in chk.parameters], key=key)
+    db = chk.work if chk.work is not None else ldb.db  # reduced to the request's elements: fast model builds
+    compiled = compiled_system(db, chk.elements, chk.candidates, [n for n, _ in chk.parameters], key=key)
     system = compiled.bind(chk.pressure, dict(chk.parameters))
     host = host_model(system, chk.phase, chk.solute, dict(chk.fix), chk.balance)
     notes = list(chk.notes)
@@ -197,9 +198,9 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
     for note in notes:
         warnings.warn(note, DatabaseWarning, stacklevel=3)
     view = PartnerView(system, chk.phase, chk.family,
-                       {p: ordering_sublattices(ldb.db, p, chk.elements) for p in chk.candidates
-                        if disordered_of(ldb.db, p)},
-                       {p: disordered_of(ldb.db, p) for p in chk.candidates if disordered_of(ldb.db, p)})
+                       {p: ordering_sublattices(db, p, chk.elements) for p in chk.candidates
+                        if disordered_of(db, p)},
+                       {p: disordered_of(db, p) for p in chk.candidates if disordered_of(db, p)})
     return HostRequest(ldb, chk.phase, chk.solute, chk.balance, chk.fix, chk.exclude, chk.pressure,
                        types.MappingProxyType(dict(chk.parameters)), chk.candidates, system, host,
                        chk.family, tuple(notes), view)

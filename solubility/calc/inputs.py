@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import re
+from collections import OrderedDict
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -49,6 +50,7 @@ class CheckedRequest:
     candidates: tuple[str, ...]  # phases that may appear, the host included, sorted
     family: tuple[str, ...] = ()  # ordered phases whose disordered state is the host's phase
     notes: tuple[str, ...] = ()  # what the user must know about the database (also warned and put in attrs)
+    work: object = None  # the pycalphad Database reduced to `elements`: models are built from it (fast)
 
 
 def check_fix(fix: Mapping[str, float] | None) -> dict[str, float]:
@@ -200,11 +202,12 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
     phase = disordered_of(ldb.db, phase) or phase  # an ordered name: its disordered state is the host
     bal = host_elements(ldb, phase, solute, fixed, balance)
     elements = sorted({bal, solute, *fixed})
-    choice = choose_phases(ldb.db, elements, phase, [p_ for p_ in excluded if p_ != named])
+    work = working_database(ldb, elements)
+    choice = choose_phases(work, elements, phase, [p_ for p_ in excluded if p_ != named])
     candidates = list(choice.candidates)
-    if phase not in filter_candidate_phases(ldb.db, elements, [phase]):
+    if phase not in filter_candidate_phases(work, elements, [phase]):
         raise InputError(f"host phase {named} cannot form from {', '.join(elements)}")
-    missing = missing_endmembers(ldb.db, phase, elements)
+    missing = missing_endmembers(work, phase, elements)
     if missing:
         raise InputError(f"host phase {phase} has no {', '.join(missing)} in the database (pycalphad would take "
                          "it as zero); add the parameter or choose another host")
@@ -212,7 +215,7 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
         raise InputError(f"no candidate partner phase for {phase} from {', '.join(elements)} once "
                          f"{', '.join(excluded) or 'nothing'} is excluded")
     notes = list(choice.warnings)
-    gaps = {p_: missing_endmembers(ldb.db, p_, elements) for p_ in candidates if p_ != phase}
+    gaps = {p_: missing_endmembers(work, p_, elements) for p_ in candidates if p_ != phase}
     gaps = {p_: m for p_, m in gaps.items() if m}
     if gaps:
         notes.append("end-members missing (taken as zero by pycalphad) in candidate phases: " + "; ".join(
@@ -220,7 +223,37 @@ def check_request(database, phase: str, solute: str, *, exclude: Sequence[str] =
                                                     else "") for p_, m in sorted(gaps.items())))
     return CheckedRequest(ldb, phase, solute, bal, tuple(sorted(fixed.items())), tuple(excluded), p,
                           tuple(sorted(params.items())), tuple(elements), tuple(candidates),
-                          choice.host_family, tuple(notes))
+                          choice.host_family, tuple(notes), work)
+
+
+#: reduced databases kept per process, by (file sha256, elements)
+_WORK: OrderedDict[tuple, object] = OrderedDict()
+_WORK_SIZE = 16
+
+
+def working_database(ldb, elements: Sequence[str]):
+    """`ldb`'s pycalphad Database reduced to `elements` (`solubility.databases.reduce.reduce_database`).
+
+    A model built from it equals the one built from the whole database (the reduction keeps every phase,
+    constituent, parameter and FUNCTION the elements can use), and is built many times faster from a large one:
+    pycalphad searches the whole parameter table for every term. Kept per process for a database read from a
+    file (keyed by its sha256); an in-memory Database, which may change, is reduced afresh. A database with no
+    other element is used as it is.
+    """
+    from solubility.databases.reduce import reduce_database
+
+    if not {str(e).upper() for e in ldb.db.elements} - {*elements, "VA", "/-"}:
+        return ldb.db  # nothing to cut away
+    key = None if ldb.sha256 is None else (ldb.sha256, tuple(sorted(elements)))
+    if key is not None and key in _WORK:
+        _WORK.move_to_end(key)
+        return _WORK[key]
+    work = reduce_database(ldb.db, elements)
+    if key is not None:
+        _WORK[key] = work
+        while len(_WORK) > _WORK_SIZE:
+            _WORK.popitem(last=False)
+    return work
 
 
 # ---------------------------------------------------------------------- temperatures

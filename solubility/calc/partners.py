@@ -17,12 +17,13 @@ when that is the host's own phase).
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from dataclasses import replace
 
 import numpy as np
 
 from solubility.thermo.phases import DrivingForce
 
-__all__ = ["SAME_RADIUS", "SCREEN_RADIUS", "PartnerView", "second_set"]
+__all__ = ["SAME_RADIUS", "SCREEN_RADIUS", "PartnerView", "partner_names", "relabel", "second_set"]
 
 #: samples this close to the host (largest difference of mole fractions; of site fractions across ordering
 #: sublattices for an ordered phase) are not screened as partners
@@ -153,3 +154,26 @@ def _spread_index(pf, ordering: Sequence[int]) -> np.ndarray:
         if k in subs:
             idx[names.index(pf.species[j]), subs.index(k)] = j
     return idx
+
+
+def partner_names(view, partners: Sequence[str], phase_y: Mapping[str, np.ndarray] | None) -> tuple[str, ...]:
+    """Partners under the names they are reported by (`PartnerView.label`), each once."""
+    out: list[str] = []
+    for p in partners:
+        name = view.label(p, None if phase_y is None else phase_y.get(p))
+        if name not in out:
+            out.append(name)
+    return tuple(out)
+
+
+def relabel(view, point):
+    """A boundary point with its partners under the names they are reported by, and the first partner's
+    composition (``partner_x``)."""
+    if not point.partners:
+        return point
+    first = point.partners[0]
+    x = None
+    if first in point.phase_y:
+        n = view.phases[first].moles @ point.phase_y[first]
+        x = n / n.sum()
+    return replace(point, partners=partner_names(view, point.partners, point.phase_y), partner_x=x)

@@ -7,8 +7,14 @@ species), the parameters whose constituents are all kept, the FUNCTIONs those pa
 ``disordered_phase`` model hints, from ``AMEND_PHASE_DESCRIPTION ... DIS_PART``) kept consistent. A model built
 from the reduced database for any subset of the kept elements equals the one built from the full database.
 
-`write_tdb` (in `solubility.databases.tdb_out`, re-exported here) writes a Database as TDB text with its header,
-reference list and reference codes; `reduce_tdb_file` does both for a file.
+`write_tdb` writes a Database as TDB text. pycalphad 0.11.2's own writer (``Database.to_string(fmt='tdb')``)
+loses, as checked here: every comment and the file's header (licence, notes), the reference code of each
+parameter (its writer has a ``TODO: Handle references``), the LIST_OF_REFERENCES (its reader skips it), and it
+puts the user's login name and the date in a generated header. It keeps the order-disorder links (written as
+``DISORDERED_PART``), the magnetic type definitions and the phase options. So the elements, species, FUNCTIONs,
+type definitions and phases are taken from pycalphad's writer (its generated header cut off), and the
+parameters are written here with their reference codes; a header and a reference list, read from the source
+text with `tdb_header` and `tdb_references`, can be given.
 """
 
 from __future__ import annotations
@@ -19,12 +25,7 @@ from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from solubility.errors import DatabaseError, InputError
-
-if TYPE_CHECKING:  # pragma: no cover
-    from pycalphad import Database
-
-from solubility.databases.tdb_out import (
+from solubility.databases.tdb_format import (
     _comment,
     _parameter_label,
     tdb_database_info,
@@ -35,6 +36,10 @@ from solubility.databases.tdb_out import (
     with_references,
     write_tdb,
 )
+from solubility.errors import DatabaseError, InputError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from pycalphad import Database
 
 __all__ = [
     "reduce_database",
@@ -96,8 +101,6 @@ def undefined_functions(db: Database) -> dict[str, list[str]]:
     return {k: sorted(v) for k, v in sorted(out.items())}
 
 
-# ------------------------------------------------------------------------------------------------------
-# reduction
 def reduce_database(database: Any, elements: Iterable[str]) -> Database:
     """A new pycalphad Database holding only what `elements` (plus VA and ``/-``) can form.
 

@@ -18,7 +18,9 @@ DF_OTHER    J/mol    largest driving force of any other candidate phase (<= 0 on
 ========== ======== =====================================================================
 
 Along ``change``: ``partner_change_T`` (K), ``partner_change_X``, ``partner_change_W``, ``partner_change_PPM``,
-``partner_below``, ``partner_above``. 0-d: the most solute on the line (``extreme_*``) and the Arrhenius fit
+``partner_below``, ``partner_above``. The lower end of the host's field (``X_LOW``, ``partner_low``,
+``status_low``, ...) and where the field opens or closes (along ``field_end``): `solubility.results.lower_end`.
+0-d: the most solute on the line (``extreme_*``) and the Arrhenius fit
 (``fit_*``), see `solubility.results.summary`.
 
 Attrs are flat and NetCDF-safe: database name and sha256, host phase, solute, site ratios, fixed contents (JSON),
@@ -132,6 +134,9 @@ def build_dataset(line, job):
         "partner_above": ("change", np.array(["+".join(c.above) for c in line.changes], dtype=object),
                           {"units": "", "long_name": "partner above the change"}),
     }
+    from solubility.results.lower_end import lower_variables
+
+    data.update(lower_variables(line, solute, where, _composition))
     coords = {
         "T": ("T", T, {"units": "K", "long_name": "temperature"}),
         # rounded to 1e-9 K (far below the 0.01 K of a located change) so 500 K reads 226.85, not 226.85000000000002
@@ -221,6 +226,8 @@ def solvus_json(ds) -> dict:
                         "wt_percent": None if w is None else 100.0 * w, "ppm": None if w is None else 1e6 * w,
                         "below": str(b).split("+"), "above": str(a).split("+")})
     ext, fit = _summary(ds)
+    from solubility.results.lower_end import lower_json
+
     return {
         "temperature_K": [float(t) for t in ds["T"].values],
         "mole_fraction": _nan_to_none([float(v) for v in ds["X"].values]),
@@ -238,6 +245,7 @@ def solvus_json(ds) -> dict:
         "database_sha256": ds.attrs.get("database_sha256"),
         "phase": ds.attrs.get("phase"),
         "solute": ds.attrs.get("solute"),
+        **lower_json(ds),
     }
 
 
@@ -275,14 +283,21 @@ def csv_text(ds) -> str:
         units = ds[name].attrs.get("units")
         buf.write(f"# {name}{f' [{units}]' if units else ''}: {_cell(ds[name].values.item())}"
                   f"  ({ds[name].attrs['long_name']})\n")
+    from solubility.results.lower_end import CSV_COLUMNS
+
+    for i in range(ds.sizes.get("field_end", 0)):
+        buf.write(f"# field_end: T [K] {_cell(ds['field_end_T'].values[i])}, X [1] "
+                  f"{_cell(ds['field_end_X'].values[i])}, W [1] {_cell(ds['field_end_W'].values[i])}, "
+                  f"{ds['field_end_kind'].values[i]}, meeting {ds['field_end_with'].values[i]}\n")
     cols = ["T", "T_C", "X", "W", "WT%", "PPM", "Y", "partner", "status", "reason"]
+    cols += CSV_COLUMNS if "status_low" in ds else []
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(["W_percent [wt%]" if c == "WT%" else (f"{c} [{ds[c].attrs['units']}]"
-                                                           if ds[c].attrs.get("units") else c) for c in cols])
+    writer.writerow([f"W{c[3:]}_percent [wt%]" if c.startswith("WT%") else (
+        f"{c} [{ds[c].attrs['units']}]" if ds[c].attrs.get("units") else c) for c in cols])
     for i in range(ds.sizes["T"]):
         row = []
         for c in cols:
-            v = 100.0 * float(ds["W"].values[i]) if c == "WT%" else ds[c].values[i]
+            v = 100.0 * float(ds["W" + c[3:]].values[i]) if c.startswith("WT%") else ds[c].values[i]
             row.append(_cell(v))
         writer.writerow(row)
     return buf.getvalue()

@@ -69,9 +69,11 @@ def partner_colours(ds) -> dict[str, str]:
     """One colour per partner, in the order partners first appear with rising temperature."""
     import matplotlib as mpl
 
+    from solubility.results.lower_end import lower_runs
+
     cycle = mpl.rcParams["axes.prop_cycle"].by_key()["color"]
     out: dict[str, str] = {}
-    for partner, _ in segments(ds):
+    for partner, _ in [*segments(ds), *lower_runs(ds)]:
         out.setdefault(partner, cycle[len(out) % len(cycle)])
     return out
 
@@ -95,14 +97,44 @@ def _segment_xy(ds, partner: str, idx: np.ndarray, var: str, factor: float, temp
     return np.array(xs), np.array(ts)
 
 
+def _to_field_ends(ds, partner, xs, T, var, factor, temperature, ts=None):
+    """A run (compositions xs at temperatures T in K, or already shown as ts) run on to the nearer end of it where
+    the host's field opens or closes with `partner` (the upper and lower ends meet there)."""
+    ts = np.array([_shown(t, temperature) for t in T]) if ts is None else np.asarray(ts)
+    xs = np.asarray(xs, dtype=float)
+    if "field_end_T" not in ds or not len(ts):
+        return xs, ts
+    for Tf, c, with_ in zip(ds["field_end_T"].values, ds[f"field_end_{var}"].values, ds["field_end_with"].values,
+                            strict=True):
+        if partner not in str(with_).split("+") or not (math.isfinite(float(Tf)) and math.isfinite(float(c))):
+            continue
+        shown = _shown(float(Tf), temperature)
+        if abs(shown - ts[0]) <= abs(shown - ts[-1]):
+            xs, ts = np.insert(xs, 0, float(c) * factor), np.insert(ts, 0, shown)
+        else:
+            xs, ts = np.append(xs, float(c) * factor), np.append(ts, shown)
+    return xs, ts
+
+
 def _draw_segments(ax, ds, var, factor, temperature, labels, colours):
     host = display(ds.attrs.get("phase", "host"), labels)
     drawn = []
     for partner, idx in segments(ds):
         xs, ts = _segment_xy(ds, partner, idx, var, factor, temperature)
+        xs, ts = _to_field_ends(ds, partner, xs, None, var, factor, temperature, ts)
         first = partner not in {p for p, _, _ in drawn}
         ax.plot(xs, ts, "-", color=colours[partner], lw=1.4, **MARKER,
                 label=f"{host} + {display(partner, labels)}" if first else None)
+        drawn.append((partner, xs, ts))
+    n_upper = len(drawn)
+    from solubility.results.lower_end import lower_runs
+
+    T, low = ds["T"].values, ds[f"{var}_LOW"].values if f"{var}_LOW" in ds else None
+    for partner, idx in lower_runs(ds):  # the lower end of the field: dashed, in the same colours
+        xs, ts = _to_field_ends(ds, partner, low[idx] * factor, T[idx], var, factor, temperature)
+        first = partner not in {p for p, _, _ in drawn[n_upper:]}
+        ax.plot(xs, ts, "--", color=colours[partner], lw=1.4, **MARKER,
+                label=f"lower end: {host} + {display(partner, labels)}" if first else None)
         drawn.append((partner, xs, ts))
     return drawn
 
@@ -312,8 +344,14 @@ def solvus_figure(ds, *, units: str = "wt%", temperature: str = "C", T_range: tu
 
         solute, host = ds.attrs.get("solute", "solute"), display(ds.attrs.get("phase", "host"), labels)
         colours = partner_colours(ds)
-        handles = [Line2D([], [], color=c, lw=1.4, **MARKER) for c in colours.values()]
-        names = [f"{host} + {display(p, labels)}" for p in colours]
+        from solubility.results.lower_end import lower_runs
+
+        upper = list(dict.fromkeys(p for p, _ in segments(ds)))
+        lower = list(dict.fromkeys(p for p, _ in lower_runs(ds)))
+        handles = [Line2D([], [], color=colours[p], lw=1.4, ls=ls, **MARKER)
+                   for ps, ls in ((upper, "-"), (lower, "--")) for p in ps]
+        names = [f"{host} + {display(p, labels)}" for p in upper]
+        names += [f"lower end: {host} + {display(p, labels)}" for p in lower]
         foot.legend(handles, names, loc="upper center", ncols=min(len(names), 4), fontsize=9, frameon=False,
                     title="segments, by the partner phase on the boundary", title_fontsize=9)
         fig.suptitle(f"Solubility limit (solvus) of {solute} in {host}; star: the most {solute} on the line",

@@ -51,8 +51,9 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
     parts = []
     for i in order:
         ds = canonical(results[i]).drop_vars("T_C", errors="ignore")
-        if "change" in ds.dims:
-            ds = ds.assign_coords(change=np.arange(ds.sizes["change"]))
+        for dim in ("change", "field_end"):
+            if dim in ds.dims:
+                ds = ds.assign_coords({dim: np.arange(ds.sizes[dim])})
         parts.append(ds.assign_coords(case=cases[i].name).expand_dims("case"))
     T = np.unique(np.concatenate([np.asarray(c.temperatures, dtype=float) for c in cases]))
     names = [c.name for c in cases]
@@ -60,7 +61,7 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
         fills = {n: _fill(v.dtype) for p in parts for n, v in p.data_vars.items()}
         ds = xr.concat(parts, dim="case", join="outer", fill_value=fills, combine_attrs="drop_conflicts",
                        coords="minimal", data_vars="all")
-        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars("change", errors="ignore")
+        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars(["change", "field_end"], errors="ignore")
         ds.attrs = {k: v for k, v in results[order[0]].attrs.items() if _is_global(k)}
         ds["T"].attrs = dict(results[order[0]]["T"].attrs)
     else:

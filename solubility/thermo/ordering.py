@@ -63,19 +63,36 @@ class PhaseChoice:
     warnings: tuple[str, ...]
 
 
+#: verdicts of `_buildable` by (id of the Database, components, phase), with the Database kept alive beside each
+#: (so an id is never reused while its entry lives); a few hundred entries at most in a session
+_BUILDABLE: dict[tuple, tuple[object, str]] = {}
+
+
 def _buildable(db, comps: Sequence[str], phase: str) -> str:
-    """'' when pycalphad builds a model of `phase` from `comps`; otherwise its one-line reason."""
+    """'' when pycalphad builds a model of `phase` from `comps`; otherwise its one-line reason.
+
+    Remembered per Database object (the reduced databases of `solubility.calc.inputs.working_database` are kept
+    per process, so a repeated request does not build its ordered candidates' models again).
+    """
     import warnings
 
     from pycalphad import Model
 
+    key = (id(db), tuple(sorted(comps)), phase)
+    seen = _BUILDABLE.get(key)
+    if seen is not None and seen[0] is db:
+        return seen[1]
     try:
         with warnings.catch_warnings():  # pycalphad's caution about partitioned physical properties: see system
             warnings.simplefilter("ignore")
             Model(db, list(comps), phase)
+        reason = ""
     except Exception as exc:
-        return " ".join(str(exc).split()) or type(exc).__name__
-    return ""
+        reason = " ".join(str(exc).split()) or type(exc).__name__
+    if len(_BUILDABLE) > 512:
+        _BUILDABLE.clear()
+    _BUILDABLE[key] = (db, reason)
+    return reason
 
 
 def choose_phases(db, elements: Iterable[str], host: str, excluded: Iterable[str] = ()) -> PhaseChoice:

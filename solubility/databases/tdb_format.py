@@ -1,20 +1,14 @@
-"""Write a pycalphad Database as TDB text, keeping a source's header, reference list and reference codes.
+"""TDB text in and out: the header, reference list and parameter references of a source file, and the TDB text
+of a pycalphad Database (`write_tdb`), each parameter keeping its reference code.
 
-pycalphad 0.11.2's own writer (``Database.to_string(fmt='tdb')``) loses, as checked here: every comment and the
-file's header (licence, notes), the reference code of each parameter (its writer has a ``TODO: Handle
-references``), the LIST_OF_REFERENCES (its reader skips it), and it puts the user's login name and the date in a
-generated header. It keeps the order-disorder links (written as ``DISORDERED_PART``), the magnetic type
-definitions and the phase options. So the elements, species, FUNCTIONs, type definitions and phases are taken
-from pycalphad's writer (its generated header cut off), and the parameters are written here with their
-reference codes; a header and a reference list, read from the source text with `tdb_header` and
-`tdb_references`, can be given.
+Used by `solubility.databases.reduce` (a database cut down to some elements, written with its source's header and
+references).
 """
 
 from __future__ import annotations
 
 import os
 import re
-import textwrap
 from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -38,6 +32,8 @@ def _parameter_label(p: Mapping[str, Any]) -> str:
     return f"{p['parameter_type']}({p['phase_name']},{cons};{p['parameter_order']})"
 
 
+# ------------------------------------------------------------------------------------------------------
+# reduction
 # ------------------------------------------------------------------------------------------------------
 # the source text: header and reference list
 def tdb_header(text: str) -> str:
@@ -280,8 +276,11 @@ def _parameter_line(p: Mapping[str, Any], ref: str) -> str:
 
 
 def _reference_entry(code: str, text: str) -> str:
+    import textwrap
 
     body = text.replace("'", "`")  # the entry is quoted with '
     wrapped = textwrap.wrap(f"'{body}'", width=68) or ["''"]
     first = f"{code:<8}{wrapped[0]}"
     return "\n".join([first, *(" " * 8 + w for w in wrapped[1:])]) + "\n"
+
+
