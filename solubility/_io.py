@@ -12,6 +12,7 @@
 
 from __future__ import annotations
 
+import collections
 import contextlib
 import os
 import signal
@@ -21,7 +22,7 @@ from collections.abc import Callable, Iterable, Iterator
 from pathlib import Path
 from typing import Any
 
-from solubility.errors import OutputError, Terminated
+from solubility.errors import OutputError, Terminated, WriteError
 
 __all__ = [
     "OutputSet",
@@ -30,10 +31,24 @@ __all__ = [
     "atomic_write_text",
     "check_output_path",
     "check_outputs",
+    "written_outputs",
 ]
+
+#: how many outputs this process has renamed into place, and the last few (for the message of an interruption)
+_WRITTEN: dict[str, Any] = {"count": 0, "last": collections.deque(maxlen=8)}
 
 #: temporary file names: "." + name + "." + 8 random characters (mkstemp) + ".part"
 _TMP_EXTRA = len("..") + 8 + len(".part")
+
+
+def written_outputs() -> tuple[int, list[Path]]:
+    """How many output files this process has written whole (renamed into place) so far, and the last few."""
+    return _WRITTEN["count"], list(_WRITTEN["last"])
+
+
+def _record(path: Path) -> None:
+    _WRITTEN["count"] += 1
+    _WRITTEN["last"].append(path)
 
 
 def _name_max(folder: Path) -> int:
@@ -151,7 +166,7 @@ def _temporary(p: Path) -> Path:
     try:
         fd, tmp_name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=folder)
     except OSError as exc:  # the folder went away or became unwritable after the checks
-        raise OutputError(f"could not write {str(p)!r}: {exc.strerror or exc}") from None
+        raise WriteError(f"could not write {str(p)!r}: {exc.strerror or exc}") from None
     os.close(fd)
     tmp = Path(tmp_name)
     umask = os.umask(0)
@@ -169,7 +184,7 @@ def _fill(tmp: Path, p: Path, write: Callable[[Path], None]) -> None:
     except OSError as exc:
         with contextlib.suppress(OSError):
             tmp.unlink()
-        raise OutputError(f"could not write {str(p)!r}: {exc.strerror or exc}") from exc
+        raise WriteError(f"could not write {str(p)!r}: {exc.strerror or exc}") from exc
     except BaseException:
         with contextlib.suppress(OSError):
             tmp.unlink()
@@ -201,7 +216,8 @@ def atomic_write(path: str | os.PathLike, write: Callable[[Path], None]) -> Path
     except OSError as exc:
         with contextlib.suppress(OSError):
             tmp.unlink()
-        raise OutputError(f"could not write {str(p)!r}: {exc.strerror or exc}") from exc
+        raise WriteError(f"could not write {str(p)!r}: {exc.strerror or exc}") from exc
+    _record(p)
     return p
 
 
@@ -240,9 +256,10 @@ class OutputSet:
         try:
             for tmp, final in self._pending:
                 os.replace(tmp, final)
+                _record(final)
                 done += 1
         except OSError as exc:
-            raise OutputError(
+            raise WriteError(
                 f"could not write {str(self._pending[done][1])!r}: {exc.strerror or exc}"
                 + (f" ({done} of {len(self._pending)} outputs were written)" if done else "")
             ) from exc

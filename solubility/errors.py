@@ -2,7 +2,8 @@
 
 Every error the tool raises on purpose is a `SolubilityError`. Those caused by what the user gave also subclass
 the matching builtin (`ValueError`, `FileNotFoundError`, ...), so callers that catch builtins keep working.
-The command line turns any `SolubilityError` into one line on standard error and exit status 2.
+The command line turns any `SolubilityError` into one line on standard error and exit status 2, except
+`WriteError` (an output that could not be written: a full or failing device), which gives exit status 4.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ __all__ = [
     "StructureError",
     "Terminated",
     "UndefinedFunctionWarning",
+    "WriteError",
 ]
 
 
@@ -51,6 +53,11 @@ class OutputError(SolubilityError, OSError):
     """An output file cannot be written (exists already, unwritable folder, full disk)."""
 
 
+class WriteError(OutputError):
+    """Writing an output failed part-way (full disk, file-size limit, the folder went away): a fault, not bad
+    input. The old file is kept and no temporary file is left."""
+
+
 class ConvergenceError(SolubilityError, RuntimeError):
     """A calculation did not converge where a result was required (points in a line are flagged instead)."""
 
@@ -69,4 +76,5 @@ class UndefinedFunctionWarning(DatabaseWarning):
 
 
 class Terminated(KeyboardInterrupt):
-    """SIGTERM arrived while outputs were being written (`solubility._io.atomic_outputs`): handled as Ctrl-C."""
+    """SIGTERM arrived (the command line and `solubility._io.atomic_outputs` raise it in the main thread so that
+    every `finally` runs): handled as Ctrl-C, with exit status 143 instead of 130."""

@@ -3,8 +3,9 @@
 A solver failure at one temperature (raised in the test hook of `solvus_line`, or deep inside the driving-force
 optimisation of one phase) must not stop the line: that point is flagged (status "failed", converged False,
 a reason, no number) and every other point is computed as in a run without the failure. An output that cannot
-be written (a folder that is a regular file, a full disk, a folder removed while the line is computed) gives
-one clear line and exit status 2, and leaves no partial file.
+be written gives one clear line and leaves no partial file: exit status 2 when it is refused before the work (a
+folder that is a regular file), 4 when writing fails (a full disk, a folder removed while the line is computed;
+the README's exit statuses).
 
 System: carbon in ferrite (BCC_A2) on the bundled Fe-C database (Hallstedt et al., Calphad 34 (2010) 129),
 graphite and diamond excluded, 700-900 K, where the partner is cementite throughout (the metastable Fe-Fe3C
@@ -171,7 +172,7 @@ def test_output_inside_regular_file_is_refused_before_work(monkeypatch, tmp_path
 @pytest.mark.parametrize("option, name", [("--csv", "line.csv"), ("--netcdf", "line.nc")])
 @pytest.mark.parametrize("existing", [False, True], ids=["new", "overwrite"])
 def test_disk_full_while_writing(monkeypatch, tmp_path, capsys, option, name, existing):
-    """ENOSPC at the flush of the output: one line naming the file, exit 2, no partial file, old file kept."""
+    """ENOSPC at the flush of the output: one line naming the file, exit 4, no partial file, old file kept."""
     out_path = tmp_path / name
     if existing:
         out_path.write_bytes(b"the previous result\n")
@@ -183,7 +184,7 @@ def test_disk_full_while_writing(monkeypatch, tmp_path, capsys, option, name, ex
     argv = [*CLI_ARGS, option, str(out_path)] + (["--overwrite"] if existing else [])
     status = main(argv)
     out, err = capsys.readouterr()
-    assert status == 2, err
+    assert status == 4, err
     assert out == ""
     assert len(err.splitlines()) == 1
     assert "No space left on device" in err and name in err
@@ -195,7 +196,7 @@ def test_disk_full_while_writing(monkeypatch, tmp_path, capsys, option, name, ex
 
 
 def test_output_folder_removed_during_the_run(monkeypatch, tmp_path, capsys):
-    """The output folder exists at the check but is gone when the line is written: one line, exit 2."""
+    """The output folder exists at the check but is gone when the line is written: one line, exit 4."""
     folder = tmp_path / "results"
     folder.mkdir()
     real = solvus_line
@@ -208,7 +209,7 @@ def test_output_folder_removed_during_the_run(monkeypatch, tmp_path, capsys):
     monkeypatch.setattr("solubility.calc.boundary.solvus_line", line_then_remove_folder)
     status = main([*CLI_ARGS, "--csv", str(folder / "line.csv")])
     out, err = capsys.readouterr()
-    assert status == 2, err
+    assert status == 4, err
     assert out == ""
     assert len(err.splitlines()) == 1 and "line.csv" in err
     assert not folder.exists()

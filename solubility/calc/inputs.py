@@ -272,14 +272,29 @@ def _range(start: float, stop: float, step: float, spec: str, max_count: int | N
         raise InputError(f"temperatures {spec!r}: STEP must be > 0")
     if stop < start:
         raise InputError(f"temperatures {spec!r}: STOP is below START; give START:STOP:STEP with START <= STOP")
-    n = math.floor((stop - start) / step + 1e-9) + 1
+    with np.errstate(over="ignore"):
+        span = np.float64(stop) - np.float64(start)
+        count = span / np.float64(step) + 1e-9  # inf when it overflows
+    if not math.isfinite(span):
+        raise InputError(f"temperatures {spec!r}: STOP - START is beyond the range of floating-point numbers; "
+                         "give temperatures in K (> 0) a finite distance apart")
+    if not math.isfinite(count) or count >= 2.0**53:
+        shown = "more than 1.8e308" if not math.isfinite(count) else f"{count:.3g}"
+        limit = max_count if max_count is not None else "2**53"
+        raise InputError(f"temperatures {spec!r} give {shown} points; at most {limit} are accepted")
+    n = math.floor(count) + 1
     _check_count(n, spec, max_count)
-    return start + step * np.arange(n)
+    values = start + step * np.arange(n)
+    if n > 1 and np.unique(values).size != n:
+        raise InputError(f"temperatures {spec!r}: STEP {step:g} is too small to tell the points apart at "
+                         f"{start:g}; give a larger STEP")
+    return values
 
 
 def _check_count(n: int, spec, max_count: int | None) -> None:
     if max_count is not None and n > max_count:
-        raise InputError(f"temperatures {str(spec)[:60]!r} give {n} points; at most {max_count} are accepted "
+        shown = f"{n}" if n < 10**12 else f"{float(n):.3g}"
+        raise InputError(f"temperatures {str(spec)[:60]!r} give {shown} points; at most {max_count} are accepted "
                          "unless the limit is lifted (max_temperatures=None in the API)")
 
 
@@ -314,6 +329,10 @@ def parse_temperatures(spec, *, celsius: bool = False, max_count: int | None = M
                 raise InputError("temperatures are empty; give START:STOP:STEP or a list of numbers")
             values = np.array([_number(p, "value") for p in parts])
     else:
+        items = spec if isinstance(spec, list | tuple) else [spec]
+        flags = getattr(getattr(spec, "dtype", None), "kind", "") == "b"
+        if flags or any(isinstance(v, bool | np.bool_) for v in items):
+            raise InputError(f"temperatures {str(spec)[:60]!r} hold true/false; give numbers in K")
         try:
             values = np.atleast_1d(np.asarray(spec, dtype=float))
         except (TypeError, ValueError):

@@ -5,9 +5,14 @@ Each subcommand is a small module in `solubility.commands` with a help docstring
 geometry commands never import pycalphad. Any `SolubilityError` becomes one line on standard error and exit
 status 2 (``--traceback`` shows the full traceback instead).
 
-Exit statuses: 0 done; 2 bad input (one line on standard error); 3 the command ran but its result holds no
-number (``solvus``: no point of the line has one; nothing is drawn); 4 an output could not be written (standard
-output or a file on a full or failing device); 130 interrupted.
+Exit statuses: 0 done; 1 ``sweep``: some cases failed; 2 bad input (one line on standard error); 3 the command
+ran but its result holds no number (``solvus``: no point of the line has one; nothing is drawn); 4 an output could
+not be written (standard output or a file on a full or failing device; the old file is kept); 130 interrupted by
+Ctrl-C (SIGINT), 143 by SIGTERM (either way one line says which outputs, if any, were written whole; no
+temporary file is left).
+
+Warnings (the tool's own, pycalphad's, numpy's) are printed as one line each, ``warning: MESSAGE``, on
+standard error, without the source line Python's warnings module would add.
 
 A value that starts with a minus sign is taken as the value of the option before it (``--temperatures
 -10:100:10``), and a console that cannot show a character (an ASCII terminal and the Å of ``sites``) gets an
@@ -23,11 +28,14 @@ import errno
 import importlib
 import os
 import re
+import signal
 import sys
-from collections.abc import Sequence
+import threading
+import warnings
+from collections.abc import Iterator, Sequence
 
 from solubility import __version__
-from solubility.errors import SolubilityError
+from solubility.errors import SolubilityError, Terminated, WriteError
 
 #: subcommands in the order ``--help`` lists them
 COMMANDS = ("sites", "model", "databases", "audit", "solvus", "uptake", "fit", "sweep")
@@ -37,6 +45,7 @@ EXIT_USAGE = 2
 EXIT_EMPTY = 3
 EXIT_OUTPUT = 4
 EXIT_INTERRUPTED = 130
+EXIT_TERMINATED = 143
 #: errno values of a device that cannot take more output
 _WRITE_ERRORS = {errno.ENOSPC, errno.EIO, errno.EFBIG, getattr(errno, "EDQUOT", errno.ENOSPC)}
 
@@ -142,34 +151,119 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return EXIT_USAGE
     try:
-        from solubility.results._mplconfig import ensure_config_dir
+        with _command_context():
+            from solubility.results._mplconfig import ensure_config_dir
 
-        ensure_config_dir()  # before pycalphad imports matplotlib
-        status = int(args._run(args) or 0)
-        sys.stdout.flush()  # a full device fails here, not in the interpreter's exit
+            ensure_config_dir()  # before pycalphad imports matplotlib
+            status = int(args._run(args) or 0)
+            sys.stdout.flush()  # a full device fails here, not in the interpreter's exit
         return status
+    except WriteError as exc:  # a fault (full disk), not bad input
+        if getattr(args, "traceback", False):
+            raise
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_OUTPUT
     except SolubilityError as exc:
         if getattr(args, "traceback", False):
             raise
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_USAGE
-    except KeyboardInterrupt:
-        print("error: interrupted", file=sys.stderr)
-        return EXIT_INTERRUPTED
+    except KeyboardInterrupt as exc:
+        return _interrupted(exc)
     except BrokenPipeError:
         _silence_stdout()
         return EXIT_OK
     except OSError as exc:
-        if getattr(args, "traceback", False) or not _is_stdout_error(exc):
+        if getattr(args, "traceback", False) or exc.errno not in _WRITE_ERRORS:
             raise
-        _silence_stdout()
-        print(f"error: cannot write to standard output: {exc.strerror or exc}", file=sys.stderr)
+        if getattr(exc, "_solubility_stdout", False):
+            _silence_stdout()
+            print(f"error: cannot write to standard output: {exc.strerror or exc}", file=sys.stderr)
+        else:  # a file written on the way (a cache, a temporary database) on a full or failing device
+            where = f" {exc.filename!r}" if exc.filename else " a file"
+            print(f"error: could not write{where}: {exc.strerror or exc}; free some space and run again",
+                  file=sys.stderr)
         return EXIT_OUTPUT
 
 
-def _is_stdout_error(exc: OSError) -> bool:
-    """An error of writing standard output (it has no file name; errors of output files name theirs)."""
-    return exc.filename is None and exc.errno in _WRITE_ERRORS
+def _interrupted(exc: KeyboardInterrupt) -> int:
+    """One line for Ctrl-C or SIGTERM saying which outputs were written whole (the rest were not touched)."""
+    from solubility._io import written_outputs
+
+    how = "SIGTERM" if isinstance(exc, Terminated) else "Ctrl-C"
+    count, last = written_outputs()
+    count -= _STATE["written_before"]
+    if count <= 0:
+        note = "no output file was written or changed and no temporary file is left"
+    else:
+        names = ", ".join(str(p) for p in last[-count:])
+        note = (f"{count} output file{'s' if count > 1 else ''} had been written whole ({names}); "
+                "no temporary file is left")
+    print(f"error: interrupted by {how}; {note}", file=sys.stderr)
+    return EXIT_TERMINATED if isinstance(exc, Terminated) else EXIT_INTERRUPTED
+
+
+_STATE = {"written_before": 0}
+
+
+def _terminated(signum: int, frame) -> None:
+    raise Terminated("terminated (SIGTERM)")
+
+
+def _one_line_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """`warnings.showwarning` of the command line: ``warning: MESSAGE`` on one line, no source line."""
+    text = " ".join(str(message).split())
+    if not issubclass(category, UserWarning) or category is UserWarning:
+        origin = re.search(r"[/\\](?:site|dist)-packages[/\\]([A-Za-z_][\w]*)", filename or "")
+        text += f" ({category.__name__}{' in ' + origin.group(1) if origin else ''})"
+    with contextlib.suppress(OSError, ValueError):  # standard error is gone: nothing more to do
+        print(f"warning: {text}", file=sys.stderr if file is None else file)
+
+
+class _Stdout:
+    """Standard output, marking the OSErrors it raises so that they are told from those of other files."""
+
+    def __init__(self, stream) -> None:
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        try:
+            return self._stream.write(text)
+        except OSError as exc:
+            exc._solubility_stdout = True  # type: ignore[attr-defined]
+            raise
+
+    def flush(self) -> None:
+        try:
+            self._stream.flush()
+        except OSError as exc:
+            exc._solubility_stdout = True  # type: ignore[attr-defined]
+            raise
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
+
+
+@contextlib.contextmanager
+def _command_context() -> Iterator[None]:
+    """While a command runs: SIGTERM raises `Terminated` (every ``finally`` runs: temporaries are removed),
+    warnings are one line each, and standard output marks its own write errors."""
+    from solubility._io import written_outputs
+
+    _STATE["written_before"] = written_outputs()[0]
+    main_thread = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, _terminated) if main_thread else None
+    show, stdout = warnings.showwarning, sys.stdout
+    warnings.showwarning = _one_line_warning
+    sys.stdout = _Stdout(stdout)
+    try:
+        yield
+    finally:
+        if sys.stdout.__class__ is _Stdout:
+            sys.stdout = stdout
+        warnings.showwarning = show
+        if main_thread:
+            signal.signal(signal.SIGTERM, previous if previous is not None else signal.SIG_DFL)
 
 
 def _silence_stdout() -> None:

@@ -28,7 +28,7 @@ from pathlib import Path
 from typing import Any
 
 from solubility._io import atomic_write, atomic_write_text
-from solubility.errors import OutputError
+from solubility.errors import OutputError, WriteError
 from solubility.sweeps.job import Case, job_sha256
 
 __all__ = ["DamagedStoreError", "Store", "canonical"]
@@ -182,7 +182,7 @@ class Store:
                 fh.flush()
                 os.fsync(fh.fileno())
         except OSError as exc:
-            raise OutputError(f"{exc}; the store keeps every case finished so far, rerun with resume") from None
+            raise WriteError(f"{exc}; the store keeps every case finished so far, rerun with resume") from None
 
     def finished(self) -> dict[int, Any]:
         """The Datasets of the finished cases, by index, each checked against the journal and its case.

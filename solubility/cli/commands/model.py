@@ -117,7 +117,7 @@ def run(args: argparse.Namespace) -> int:
     if args.output:
         from solubility.databases.reader import database_path
 
-        inputs = [structure, database_path(args.with_elements) if args.with_elements else None]
+        inputs = [structure, *(database_path(d) for d in (args.with_elements, args.base) if d)]
         out = check_output_path(args.output, overwrite=args.overwrite, inputs=inputs)
     model = SublatticeModel.from_structure(
         args.phase,

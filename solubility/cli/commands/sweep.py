@@ -86,17 +86,19 @@ def _summary(ds, seconds: float, resumed: int) -> str:
 
 def run(args: argparse.Namespace) -> int:
     """Read the job, run the sweep, write the outputs; 1 if a case failed."""
-    from solubility._io import check_output_path
+    from pathlib import Path
+
+    from solubility._io import atomic_outputs, check_output_path
     from solubility.cli.commands._common import emit_json
-    from solubility.errors import InputError
-    from solubility.sweeps import read_job, sweep, sweep_json, write_csv, write_netcdf
+    from solubility.errors import InputError, Terminated
+    from solubility.sweeps import read_job, sweep, sweep_json
     from solubility.sweeps.run import check_address
 
     if args.resume and not args.store:
         raise InputError("--resume needs --store DIR (the folder of the run to resume)")
     if not args.connect_timeout > 0 or args.connect_timeout > 3600:
         raise InputError(f"--connect-timeout {args.connect_timeout:g} is outside (0, 3600] s")
-    outputs = [(o, p, w) for o, p, w in (("--netcdf", args.netcdf, write_netcdf), ("--csv", args.csv, write_csv)) if p]
+    outputs = [(o, p, w) for o, p, w in (("--netcdf", args.netcdf, _netcdf), ("--csv", args.csv, _csv)) if p]
     _check_outputs_are_not_inputs(args, outputs, [])  # the job file first: with --overwrite it would be lost
     for _, path, _ in outputs:
         check_output_path(path, overwrite=args.overwrite)
@@ -112,14 +114,17 @@ def run(args: argparse.Namespace) -> int:
         ds = sweep(cases, workers=args.workers, scheduler=args.scheduler, store=args.store, resume=args.resume,
                    progress=counter, strict=args.strict, overwrite=args.overwrite,
                    connect_timeout=args.connect_timeout)
-        for _, path, write in outputs:
-            write(ds, path)
+        with atomic_outputs() as files:  # all outputs or none
+            for _, path, encode in outputs:
+                data = encode(ds)
+                files.write(path, lambda tmp, data=data: Path(tmp).write_bytes(data))
     except KeyboardInterrupt as exc:
         counter.close()
         kept = f"; {counter.done} finished cases are in the store, rerun with --resume" if args.store else ""
-        how = "SIGTERM" if isinstance(exc, _Terminated) else "Ctrl-C"
-        print(f"error: sweep stopped by {how}: workers stopped, temporary files removed{kept}", file=sys.stderr)
-        return 143 if isinstance(exc, _Terminated) else 130
+        term = isinstance(exc, _Terminated | Terminated)
+        print(f"error: sweep stopped by {'SIGTERM' if term else 'Ctrl-C'}: workers stopped, temporary files "
+              f"removed, no output file written{kept}", file=sys.stderr)
+        return 143 if term else 130
     finally:
         if main_thread:
             signal.signal(signal.SIGTERM, previous)
@@ -132,6 +137,16 @@ def run(args: argparse.Namespace) -> int:
         resumed = len(cases) - counter.ran
         print(_summary(ds, time.perf_counter() - started, resumed), file=sys.stderr)
     return 0 if all(s == "ok" for s in ds["case_status"].values.tolist()) else 1
+
+
+def _netcdf(ds) -> bytes:
+    return bytes(ds.to_netcdf(engine="h5netcdf"))  # in memory: a full disk fails cleanly in the write
+
+
+def _csv(ds) -> bytes:
+    from solubility.sweeps import csv_text
+
+    return csv_text(ds).encode("utf-8")
 
 
 class _Terminated(KeyboardInterrupt):
