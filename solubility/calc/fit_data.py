@@ -20,6 +20,9 @@ import numpy as np
 
 from solubility.errors import InputError
 
+#: largest data file accepted, bytes (a measured solubility data set is kilobytes)
+MAX_DATA_BYTES = 4 * 1024 * 1024
+
 __all__ = ["FitData", "free_symbols", "read_fit_data"]
 
 _COMPOSITION_COLUMNS = ("x", "wt_percent", "ppm")
@@ -93,12 +96,18 @@ def read_fit_data(path: str | Path, *, molar_masses: Mapping[str, float] | None 
     """
     p = Path(path)
     try:
+        size = p.stat().st_size
+        if p.is_file() and size > MAX_DATA_BYTES:
+            raise InputError(f"data file {str(p)!r} holds {size} bytes; at most {MAX_DATA_BYTES} are accepted "
+                             "(a measured data set is far smaller)")
         with open(p, newline="", encoding="utf-8") as fh:
             reader = csv.DictReader(fh)
             rows = [{(k or "").strip(): v for k, v in r.items()} for r in reader]
             header = [h.strip() for h in (reader.fieldnames or [])]
     except (OSError, UnicodeDecodeError) as exc:
         raise InputError(f"data file {str(p)!r} cannot be read: {getattr(exc, 'strerror', None) or exc}") from None
+    except csv.Error as exc:
+        raise InputError(f"data file {str(p)!r} is not a readable CSV table: {exc}") from None
     unknown = [h for h in header if h not in _KNOWN]
     if unknown:
         raise InputError(f"data file {p.name}: unknown column {unknown[0]!r}; columns: {_COLUMNS}")

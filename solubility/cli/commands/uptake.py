@@ -149,6 +149,8 @@ def _table(ds) -> str:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
+    import numpy as np
+
     from solubility import surface_map, uptake
     from solubility._io import atomic_outputs
     from solubility.calc.inputs import parse_temperatures
@@ -195,8 +197,11 @@ def run(args: argparse.Namespace) -> int:
         outs.append(("map", args.map))
         map_image = surface_figure_bytes(surface, Path(args.map).suffix.lower().lstrip("."),
                                          temperature=args.plot_temperature, lines=[ds])
+    empty = not bool(np.isin(ds["status"].values, ("ok", "metastable")).any())
     with atomic_outputs() as files:  # all outputs or none
         for kind, path in outs:
+            if kind == "plot" and empty:
+                continue  # nothing to draw: said below, exit status 3
             if kind == "csv":
                 files.write_text(path, uptake_csv_text(ds))
             elif kind == "netcdf":
@@ -215,5 +220,11 @@ def run(args: argparse.Namespace) -> int:
     else:
         print(_table(ds))
         for kind, path in outs:
-            print(f"wrote {kind}: {path}", file=sys.stderr)
+            if not (kind == "plot" and empty):
+                print(f"wrote {kind}: {path}", file=sys.stderr)
+    if empty:
+        states = ", ".join(sorted({str(s) for s in ds["status"].values}))
+        note = "; no figure written" if args.plot else ""
+        print(f"error: no point of the line has a number (status {states}){note}", file=sys.stderr)
+        return 3
     return 0
