@@ -85,6 +85,29 @@ def _composition(line, s: float) -> tuple[float, float, float]:
     return float(x[k]), float(mass[k] / mass.sum()), float(y[host.solute_index])
 
 
+def request_attrs(job, host_model) -> dict:
+    """The flat provenance attrs every result of a host request carries: database (name, sha256), host, solute,
+    balance, site ratios, fix, exclude, candidates, pressure (Pa), package versions, creation time, the
+    database's notes and the caution."""
+    ldb = job.database
+    return {
+        "database": ldb.name,
+        "database_sha256": ldb.sha256 or "",
+        "phase": job.phase,
+        "solute": job.solute,
+        "balance": job.balance,
+        "site_ratios": f"{host_model.a:g}:{host_model.c:g}",
+        "fix": json.dumps(dict(job.fix)),
+        "exclude": ",".join(job.exclude),
+        "candidates": ",".join(job.candidates),
+        "pressure_Pa": float(job.pressure),
+        **_versions(),
+        "created": datetime.now(UTC).isoformat(timespec="seconds"),
+        "database_notes": " | ".join(getattr(job, "notes", ()) or ()),
+        "caution": CAUTION,
+    }
+
+
 def build_dataset(line, job):
     """The solvus Dataset from a `solubility.calc.boundary.SolvusLine` and its `solubility.calc.host.HostRequest`."""
     import xarray as xr
@@ -143,24 +166,7 @@ def build_dataset(line, job):
         "T_C": ("T", np.round(T - ZERO_CELSIUS, 9), {"units": "degC", "long_name": "temperature"}),
         "component": ("component", list(line.elements), {"units": "", "long_name": "element"}),
     }
-    ldb = job.database
-    attrs = {
-        "title": f"solvus of {solute} in {host}",
-        "database": ldb.name,
-        "database_sha256": ldb.sha256 or "",
-        "phase": host,
-        "solute": solute,
-        "balance": job.balance,
-        "site_ratios": f"{line.host.a:g}:{line.host.c:g}",
-        "fix": json.dumps(dict(job.fix)),
-        "exclude": ",".join(job.exclude),
-        "candidates": ",".join(job.candidates),
-        "pressure_Pa": float(job.pressure),
-        **_versions(),
-        "created": datetime.now(UTC).isoformat(timespec="seconds"),
-        "database_notes": " | ".join(getattr(job, "notes", ()) or ()),
-        "caution": CAUTION,
-    }
+    attrs = {"title": f"solvus of {solute} in {host}", **request_attrs(job, line.host)}
     from solubility.results.summary import add_summary
 
     return add_summary(xr.Dataset(data, coords=coords, attrs=attrs))

@@ -25,14 +25,12 @@ Metastable points keep their numbers (the host's content if it stays), flagged b
 
 from __future__ import annotations
 
-import json
 import math
-from datetime import UTC, datetime
 
 import numpy as np
 
 from solubility.constants import ZERO_CELSIUS, R
-from solubility.results.dataset import CAUTION, _composition, _versions
+from solubility.results.dataset import CAUTION, _composition, _versions, request_attrs
 
 __all__ = ["build_limit_dataset", "build_uptake_dataset", "sieverts_fit", "uptake_csv_text", "uptake_json"]
 
@@ -116,24 +114,14 @@ def build_uptake_dataset(line, job, surroundings, *, sieverts_range=None):
         "T_C": ("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}),
         "component": ("component", list(line.elements), {"units": "", "long_name": "element"}),
     }
-    ldb = job.database
     sur = surroundings
     given = (f"activity {sur.value:g}" if sur.kind == "activity" else
              f"partial pressure of {solute}2 {sur.value:g} Pa" if sur.kind == "partial_pressure" else
              "atmosphere " + ",".join(f"{k}={v:g}" for k, v in sur.atmosphere.pressures.items()) + " Pa")
     attrs = {
         "title": f"uptake of {solute} by {host}",
-        "database": ldb.name,
-        "database_sha256": ldb.sha256 or "",
-        "phase": host,
-        "solute": solute,
-        "balance": job.balance,
-        "site_ratios": f"{line.host.a:g}:{line.host.c:g}",
-        "fix": json.dumps(dict(job.fix)),
-        "exclude": ",".join(job.exclude),
-        "candidates": ",".join(job.candidates),
+        **request_attrs(job, line.host),
         "not_checked": ",".join(line.not_checked),
-        "pressure_Pa": float(job.pressure),
         "surroundings": sur.kind,
         "surroundings_value": given,
         "reference": pot.ref_text,
@@ -141,9 +129,6 @@ def build_uptake_dataset(line, job, surroundings, *, sieverts_range=None):
         "reaction": pot.reaction,
         "gas_mixture": ("equilibrated" if sur.atmosphere.equilibrate else "as given") if sur.atmosphere else "",
         **attrs_extra,
-        **_versions(),
-        "created": datetime.now(UTC).isoformat(timespec="seconds"),
-        "caution": CAUTION,
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
