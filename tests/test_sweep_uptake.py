@@ -73,6 +73,9 @@ def test_cli_json_and_csv_hold_both_kinds(job, tmp_path, capsys):
     cases = json.loads(capsys.readouterr().out)["cases"]
     assert [c["status"] for c in cases] == ["ok"] * 3
     assert cases[1]["activity"] == pytest.approx([0.2] * 3, rel=1e-9) and "partner_changes" in cases[0]
+    assert main(["sweep", str(job), "--workers", "0", "--quiet"]) == 0
+    table = {line.split()[0]: line.split() for line in capsys.readouterr().out.splitlines()}
+    assert table["uptake-a0.2"][1:4] == ["ok", "3", "3"]  # three points, each with a number
     rows = out.read_text().splitlines()
     assert len(rows) == 1 + 3 * 3 and "kind" in rows[0].split(",")
 
