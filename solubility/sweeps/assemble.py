@@ -6,8 +6,10 @@ A failed case has padding everywhere. Other dims of the solvus (``component`` of
 over the cases, padded the same way; ``change`` (partner changes) is padded to the longest.
 Coordinates along ``case``: ``case`` (the names), the inputs ``database`` (as given), ``phase``, ``solute``,
 ``pressure`` (Pa), ``fix`` (JSON), ``exclude`` (joined by ","), ``balance`` (the one the solvus used), then
-``case_status`` ("ok"/"failed") and ``case_error``, then the other per-case attributes of the solvus result
-(``database_name``, ``database_sha256``, ``site_ratios``, ``candidates``, ...). Attributes: the package
+``case_status`` ("ok"/"failed"), ``case_error`` and ``kind`` ("solvus" or "uptake"), then the other per-case
+attributes of the solvus or uptake result (``database_name``, ``database_sha256``, ``site_ratios``,
+``surroundings``, ...; "" or NaN where a case's kind has none). Uptake variables (``activity``, ``MU_SOLUTE``,
+...) are padding on solvus cases and the other way round. Attributes: the package
 versions and caution of the first finished case, ``title``, ``job_sha256`` and ``created``.
 """
 
@@ -32,7 +34,8 @@ __all__ = ["assemble", "case_dataset", "csv_text", "sweep_json", "write_csv", "w
 
 #: solvus attributes that are inputs (coordinates already) or the sweep's own
 _DROPPED = {"created", "title", "phase", "solute", "pressure_Pa", "fix", "balance", "exclude"}
-INPUT_COORDS = ("database", "phase", "solute", "pressure", "fix", "exclude", "balance", "case_status", "case_error")
+INPUT_COORDS = ("database", "phase", "solute", "pressure", "fix", "exclude", "balance", "case_status", "case_error",
+                "kind")
 
 
 def _fill(dtype: np.dtype) -> Any:
@@ -74,7 +77,8 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
                        {"long_name": "temperature asked for by the case (False: padding of the union of grids)"})
     ds = ds.assign_coords(T_C=("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}))
     ds = ds.assign_coords(_case_coords(cases, results, errors))
-    ds.attrs.update(title=f"sweep of {len(cases)} solvus cases", job_sha256=job_sha256(list(cases)),
+    kinds = " and ".join(sorted({c.kind for c in cases}))
+    ds.attrs.update(title=f"sweep of {len(cases)} {kinds} cases", job_sha256=job_sha256(list(cases)),
                     created=datetime.now(UTC).isoformat(timespec="seconds"))
     return ds
 
@@ -93,6 +97,7 @@ def _case_coords(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapp
         "exclude": text([",".join(c.exclude) for c in cases], "excluded phases"),
         "balance": text([str(results[i].attrs.get("balance", "")) if i in results else (c.balance or "")
                          for i, c in enumerate(cases)], "balance element"),
+        "kind": text([c.kind for c in cases], "case kind: solvus or uptake (`solubility.uptake`)"),
         "case_status": text(["ok" if i in results else "failed" for i in range(n)], "case status: ok or failed"),
         "case_error": text(["" if i in results else errors.get(i, "not run") for i in range(n)],
                            "error of a failed case"),
@@ -142,12 +147,16 @@ def sweep_json(ds) -> dict[str, Any]:
     """``{"cases": [...]}``: per case ``name``, ``status``, ``error`` and the keys of `solubility.solvus`'s JSON
     for its own temperatures (its per-point ``status`` renamed ``point_status``)."""
     from solubility.results.dataset import solvus_json
+    from solubility.results.uptake_dataset import uptake_json
 
     out = []
     for name in ds["case"].values.tolist():
         one = case_dataset(ds, name)
         entry = {"name": name, "status": one.attrs["case_status"], "error": one.attrs["case_error"]}
-        if "X" in one.data_vars:
+        if one.attrs["kind"] == "uptake" and one.attrs["case_status"] == "ok":
+            line = uptake_json(one.drop_vars([n for n in ("derived", "KS_X", "KS_CM3", "KS_PPM") if n in one
+                                              and not np.isfinite(one[n].values).any()]))
+        elif "X" in one.data_vars and one.attrs["case_status"] == "ok":
             line = solvus_json(one)
         else:
             n = one.sizes["T"]

@@ -3,11 +3,12 @@
 A job file has three optional top-level tables (at least one case in all):
 
 ``[defaults]``
-    Any case key but ``name``; applied to every case and product that does not give the key itself (a key
-    given in a case replaces the default whole; tables such as ``fix`` are not merged).
+    Any case key but ``name``, for every case and product that does not give it (given, it replaces the default
+    whole: tables such as ``fix`` are not merged).
 ``[[case]]``
     One case per table: ``name``, ``database``, ``phase``, ``solute``, ``temperatures`` (required, unless in
-    the defaults), ``exclude``, ``fix``, ``balance``, ``pressure``.
+    the defaults), ``exclude``, ``fix``, ``balance``, ``pressure``, and ``kind`` (``"solvus"``, the default, or
+    ``"uptake"`` with the uptake keys of `solubility.sweeps.kinds`: ``activity``, ``partial_pressure``, ...).
 ``[[product]]``
     Many cases at once: the keys of a case, where ``name`` is a template, plus a ``[product.vary]`` table whose
     every key holds a list of alternatives; one case is made for every combination (the first key varies
@@ -15,11 +16,9 @@ A job file has three optional top-level tables (at least one case in all):
     list of whole ``fix`` tables. The template refers to the varied values as ``{phase}``, ``{fix.CR}``,
     ``{pressure}``, ... and to the combination number as ``{index}`` (from 1).
 
-Numbers in names are written one way (`number_label`): the shortest text that reads back to the same value,
-plain from 1e-3 to below 1e5 (``1000``, ``0.02``), with a power of ten outside (``1e5``, ``2.5e9``, ``1e-4``),
-never with ``+`` or leading zeros in the exponent. A job expands to at most `MAX_CASES` cases; the count is
-made before anything is expanded. Values are checked by the validators of `solubility.calc.inputs` (the same
-rules as the Python API and the other commands): u-fractions in (0, 1), pressures > 0 Pa.
+Numbers in names are written as `number_label` writes them (``1000``, ``0.02``, ``1e5``, ``2.5e9``, ``1e-4``).
+A job expands to at most `MAX_CASES` cases (counted before anything is expanded). Values are checked by the
+validators of `solubility.calc.inputs` and `solubility.sweeps.kinds` (the rules of the Python API).
 """
 
 from __future__ import annotations
@@ -40,12 +39,14 @@ from typing import Any
 
 from solubility.calc.inputs import check_fix, check_pressure, parse_temperatures
 from solubility.errors import InputError, JobError
+from solubility.sweeps.kinds import KIND_KEYS, check_kind
 
 __all__ = ["CASE_KEYS", "MAX_CASES", "Case", "job_sha256", "number_label", "parse_job", "read_job"]
 
 #: the most cases one job may hold (a product is counted before it is expanded)
 MAX_CASES = 10_000
-CASE_KEYS = ("name", "database", "phase", "solute", "temperatures", "exclude", "fix", "balance", "pressure")
+CASE_KEYS = ("name", "database", "phase", "solute", "temperatures", "exclude", "fix", "balance", "pressure",
+             *KIND_KEYS)
 REQUIRED = ("name", "database", "phase", "solute", "temperatures")
 _NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_#]*$")
 _PLACEHOLDER = re.compile(r"\{([^{}]*)\}")
@@ -124,9 +125,9 @@ def _fix(value: Any, where: str) -> tuple[tuple[str, float], ...]:
             check_fix({el: u})
         except InputError as exc:
             raise JobError(f"{where}: key 'fix.{el}': {exc}") from None
-    if len({el for el, _ in pairs}) < len(pairs):
-        raise JobError(f"{where}: key 'fix': an element is given twice")
     try:
+        if len({el for el, _ in pairs}) < len(pairs):
+            raise InputError("an element is given twice")
         return tuple(sorted(check_fix(dict(pairs)).items()))
     except InputError as exc:
         raise JobError(f"{where}: key 'fix': {exc}") from None
@@ -134,27 +135,24 @@ def _fix(value: Any, where: str) -> tuple[tuple[str, float], ...]:
 
 @dataclasses.dataclass(frozen=True)
 class Case:
-    """The inputs of one solvus line in a sweep, validated and normalized on construction.
+    """The inputs of one solvus or uptake line in a sweep, validated and normalized on construction.
 
     Parameters
     ----------
-    name
-        Unique name of the case in its sweep (the ``case`` coordinate).
-    database
-        TDB path or bundled database name (`read_job` makes paths relative to the job file absolute).
-    phase, solute
-        Host phase (``"BCC_A2"``) and interstitial element (``"C"``), upper-cased.
+    name, database
+        Unique name in the sweep (the ``case`` coordinate); TDB path (`read_job` makes paths relative to the job
+        file absolute) or bundled database name.
+    phase, solute, exclude
+        Host phase (``"BCC_A2"``), interstitial element (``"C"``), phases left out (stored sorted), upper-cased.
     temperatures
         K: ``"START:STOP:STEP"`` (STOP included) or numbers; stored strictly increasing, rounded to 1 uK.
-    exclude
-        Phases left out of the equilibrium, stored sorted.
     fix
         u-fractions of other host elements, each in (0, 1), summing to less than 1 (as in `solubility.solvus`);
         stored as sorted ``(element, u)`` pairs.
-    balance
-        The host's balance element, or None to let the solvus find it.
-    pressure
-        Pa, > 0 (default 101325).
+    balance, pressure
+        The host's balance element (None: found by the solvus); Pa, > 0 (default 101325).
+    kind, activity, reference, partial_pressure, atmosphere, equilibrate_gas
+        ``"solvus"`` (default) or ``"uptake"`` and its surroundings (`solubility.sweeps.kinds`).
 
     Raises
     ------
@@ -171,6 +169,12 @@ class Case:
     fix: tuple[tuple[str, float], ...] = ()
     balance: str | None = None
     pressure: float = 101325.0
+    kind: str = "solvus"
+    activity: float | None = None
+    reference: str | None = None
+    partial_pressure: float | None = None
+    atmosphere: str | None = None
+    equilibrate_gas: bool = False
 
     def __post_init__(self) -> None:
         named = isinstance(self.name, str) and self.name.strip()
@@ -181,6 +185,8 @@ class Case:
             except InputError as exc:
                 raise JobError(f"{where}: key {key!r}: {exc}") from None
         object.__setattr__(self, "fix", _fix(self.fix, where))
+        for key, value in check_kind({k: getattr(self, k) for k in KIND_KEYS}, where).items():
+            object.__setattr__(self, key, value)
         if self.solute in self.fix_dict:
             raise JobError(f"{where}: key 'fix.{self.solute}': the solute cannot also be a fixed host element")
         if self.balance is not None and (self.balance in self.fix_dict or self.balance == self.solute):
@@ -212,9 +218,10 @@ class Case:
         return (self.database, self.solute, tuple(self.fix_dict), self.balance, self.exclude)
 
     def to_dict(self) -> dict[str, Any]:
-        """The normalized inputs as JSON values."""
-        return {**dataclasses.asdict(self), "temperatures": list(self.temperatures), "exclude": list(self.exclude),
-                "fix": self.fix_dict}
+        """The normalized inputs as JSON values (a solvus case without the uptake keys, as before they existed)."""
+        out = {**dataclasses.asdict(self), "temperatures": list(self.temperatures), "exclude": list(self.exclude),
+               "fix": self.fix_dict}
+        return {k: v for k, v in out.items() if k not in KIND_KEYS} if self.kind == "solvus" else out
 
     def sha256(self) -> str:
         return _digest(self.to_dict())

@@ -33,10 +33,16 @@ PRELOAD = ("solubility.sweeps.run", "solubility.calc.boundary", "solubility.ther
 
 
 def run_case(case: Case) -> tuple[str, Any]:
-    """``("", Dataset)`` for a case computed by `solubility.solvus`, ``("Type: message", None)`` if it failed."""
-    from solubility import solvus
+    """``("", Dataset)`` for a case computed by `solubility.solvus` (or `solubility.uptake` for an uptake case),
+    ``("Type: message", None)`` if it failed."""
+    from solubility import solvus, uptake
+    from solubility.sweeps.kinds import uptake_arguments
 
     try:
+        if case.kind == "uptake":
+            return "", uptake(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
+                              fix=case.solvus_fix, balance=case.balance, pressure=case.pressure,
+                              **uptake_arguments(case))
         return "", solvus(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
                           fix=case.solvus_fix, balance=case.balance, pressure=case.pressure)
     except Exception as exc:  # a sweep records the failure of one case and goes on
@@ -163,6 +169,7 @@ def check_databases(cases: list[Case]) -> None:
         for key, check, names in (("phase", check_phases, [case.phase]), ("exclude", check_phases, case.exclude),
                                   ("solute", check_elements, [case.solute]),
                                   ("fix", check_elements, list(case.fix_dict)),
+                                  ("reference", check_phases, [case.reference] if case.reference else []),
                                   ("balance", check_elements, [case.balance] if case.balance else [])):
             try:
                 if names:

@@ -1,7 +1,8 @@
-"""Run the solvus cases of a TOML job file in parallel, resumably, into one table.
+"""Run the solvus (and uptake) cases of a TOML job file in parallel, resumably, into one table.
 
 JOB.toml holds [[case]] tables (name, database, phase, solute, temperatures "START:STOP:STEP" or a list in K,
-and optionally exclude, fix, balance, pressure), an optional [defaults] table and [[product]] tables whose
+and optionally exclude, fix, balance, pressure; kind = "uptake" with one of activity, partial_pressure or
+atmosphere for an uptake case), an optional [defaults] table and [[product]] tables whose
 [product.vary] lists are expanded as a cartesian product. The whole file is checked before any work.
 
 Cases run on local worker processes (--workers, default: one per CPU) or on a dask.distributed cluster
@@ -63,6 +64,8 @@ def _table(ds) -> str:
     for i, name in enumerate(ds["case"].values.tolist()):
         asked = ds["requested"].values[i]
         converged = int(ds["converged"].values[i][asked].sum()) if "converged" in ds else 0
+        if "kind" in ds.coords and ds["kind"].values[i] == "uptake":  # as `solubility uptake --json` counts them
+            converged = sum(s in ("ok", "metastable", "below_limit") for s in ds["status"].values[i][asked].tolist())
         has_partner = "partner" in ds
         partners = sorted({p for p in ds["partner"].values[i][asked].tolist() if p}) if has_partner else []
         rows.append(
