@@ -99,6 +99,9 @@ import solubility.results.dataset as dataset
 from solubility.cli.main import main
 
 SIG, WHERE = signal.{sig}, {where!r}
+# a process started in the background by a non-interactive shell (as CI may start the suite) inherits SIGINT
+# ignored, and Python then installs no Ctrl-C handler; a terminal's Ctrl-C reaches a process that has one
+signal.signal(signal.SIGINT, signal.default_int_handler)
 if WHERE == "line":  # at the second temperature of the line
     real = api.solvus
     def solvus(*args, **kwargs):
