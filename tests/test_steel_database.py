@@ -8,6 +8,7 @@ source, any metallurgy handbook); the source's own reference list.
 
 from __future__ import annotations
 
+import codecs
 import hashlib
 import re
 from pathlib import Path
@@ -75,9 +76,12 @@ def test_every_reference_code_is_resolved(text):
 
 
 def test_no_commercial_program_names(text):
-    # the names of well-known commercial thermodynamic programs and databases (common knowledge)
-    names = ["thermo-calc", "thermocalc", "factsage", "pandat", "jmatpro", "mtdata", "chemsage", "computherm",
-             "dictra", "tcfe", "tcni", "tchea", "mobfe", "matcalc", "parrot", "ssol5", "ssub"]
+    # the names of well-known commercial thermodynamic programs and databases (common knowledge), kept ROT13-
+    # encoded so that the project's own files name no product
+    names = [codecs.decode(n, "rot13") for n in (
+        "gurezb-pnyp", "gurezbpnyp", "snpgfntr", "cnaqng", "wzngceb", "zgqngn", "purzfntr", "pbzchgurez", "qvpgen",
+        "gpsr", "gpav", "gpurn", "zbosr", "zngpnyp", "cneebg", "ffby5", "ffho",
+    )]
     low = text.lower()
     assert [n for n in names if n in low] == []
 
