@@ -224,20 +224,26 @@ class _Engine:
                 return (k if res.x > grid[k] else k - 1), float(res.x)
         return None
 
-    def _crossing(self, T: float, lo: float, hi: float, partner: str) -> BoundaryPoint:
-        """The first crossing in (lo, hi), where max DF goes from negative to positive."""
+    def _crossing(self, T: float, lo: float, hi: float, partner: str, sign: float = 1.0) -> BoundaryPoint:
+        """The crossing in (lo, hi) where max DF changes sign: the first from negative to positive (the upper end
+        of the host's field, ``sign = 1``) or the last from positive to negative (its lower end, ``sign = -1``)."""
+        which = "" if sign > 0 else "lower "
         for _ in range(len(self.others) + 1):
-            sol = self.solve_partner(partner, T, 0.5 * (lo + hi), None, bracket=(lo, hi))
+            sol = self.solve_partner(partner, T, 0.5 * (lo + hi), None, bracket=(lo, hi), sign=sign)
             if sol is None:
-                return self._null(T, "failed", f"boundary with {partner} did not converge")
+                return self._null(T, "failed", f"{which}boundary with {partner} did not converge")
             s, res = sol
             point = self.finish(T, s, {partner: res})
             if point.converged or point.reason != "another phase is more stable at the boundary":
                 return point
-            # a phase crosses earlier than `partner`: move the bracket below s and solve for that one
-            _, first, _ = self.max_df(s, T)
-            hi, partner = s, first
-        return self._null(T, "failed", "no consistent first crossing found")
+            # another phase is more stable at s: the boundary lies beyond it (below s for the upper end, above s
+            # for the lower end), against that phase
+            _, partner, _ = self.max_df(s, T)
+            if sign > 0:
+                hi = s
+            else:
+                lo = s
+        return self._null(T, "failed", f"no consistent {'first' if sign > 0 else 'lower'} crossing found")
 
     def warm(self, T: float, prev: BoundaryPoint, before: BoundaryPoint | None = None) -> BoundaryPoint:
         """Solve at T starting from the previous point(s) of the line; a cold solve where that fails."""

@@ -92,25 +92,9 @@ class LowerEnds:
         for s in sorted((g for g in self.grid if g < hi), reverse=True):
             f, phase = known[s] if s in known else e.max_df(s, T, quick=True)[:2]
             if f >= 0:
-                return self._crossing(T, s, hi, phase)
+                return self.e._crossing(T, s, hi, phase, sign=-1.0)
             hi = s
         return e._null(T, "no_partner", "")
-
-    def _crossing(self, T: float, lo: float, hi: float, partner: str):
-        """The last crossing in (lo, hi), where max DF goes from positive to negative."""
-        e = self.e
-        for _ in range(len(e.others) + 1):
-            sol = e.solve_partner(partner, T, 0.5 * (lo + hi), None, bracket=(lo, hi), sign=-1.0)
-            if sol is None:
-                return e._null(T, "failed", f"lower boundary with {partner} did not converge")
-            s, res = sol
-            point = e.finish(T, s, {partner: res})
-            if point.converged or point.reason != "another phase is more stable at the boundary":
-                return point
-            # another phase is still more stable there: the lower end lies above s, against that phase
-            _, partner, _ = e.max_df(s, T)
-            lo = s
-        return e._null(T, "failed", "no consistent lower crossing found")
 
     # ---------------------------------------------------------------- opening and closing of the field
     def field_end(self, upper, lower, T_out: float) -> FieldEnd:
