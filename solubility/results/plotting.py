@@ -2,9 +2,9 @@
 
 Composition is on the horizontal axis and temperature on the vertical one, as on a phase diagram. Each run of
 temperatures with one partner is drawn as its own segment, in one colour per partner on every panel, with a
-marker at every computed point. Partner changes are dotted lines labelled with their temperature; the most
-solute on the line is marked with a star and annotated with its composition and temperature. Labels are placed
-where they touch no data; a segment too small to see on a linear axis is shown enlarged in an inset.
+marker at every computed point. Partner changes (of the lower end too) are dotted lines labelled with their
+temperature; the most solute on the line is marked with a star and annotated with its composition and temperature.
+Labels are placed where they touch no data; a segment too small to see on a linear axis is shown enlarged in an inset.
 Temperatures on figures are rounded to whole degrees (a database's invariant temperatures are uncertain by a
 few kelvin); compositions to three significant digits. Phase names are the database's unless `labels` maps
 them to display names (``{"BCC_A2": "ferrite"}``).
@@ -141,8 +141,13 @@ def _draw_segments(ax, ds, var, factor, temperature, labels, colours):
 
 def _change_lines(ax, ds, temperature, labels, obstacles):
     tu = _tu(temperature)
-    for Tc, below, above in zip(ds["partner_change_T"].values, ds["partner_below"].values,
-                                ds["partner_above"].values, strict=True):
+    events = [("", Tc, below, above) for Tc, below, above in zip(
+        ds["partner_change_T"].values, ds["partner_below"].values, ds["partner_above"].values, strict=True)]
+    if "partner_low_change_T" in ds:  # the lower end's partner changes (`solubility.results.lower_end`)
+        events += [("lower end ", Tc, below, above) for Tc, below, above in zip(
+            ds["partner_low_change_T"].values, ds["partner_low_below"].values, ds["partner_low_above"].values,
+            strict=True)]
+    for which, Tc, below, above in events:
         if not math.isfinite(float(Tc)):
             continue
         shown = _shown(float(Tc), temperature)
@@ -151,7 +156,7 @@ def _change_lines(ax, ds, temperature, labels, obstacles):
         fy = ax.transLimits.transform((ax.get_xlim()[0], shown))[1]
         anchors = [(fx, fy + dy, ha, va) for dy, va in ((0.006, "bottom"), (-0.006, "top"))
                    for fx, ha in ((0.02, "left"), (0.98, "right"), (0.5, "center"))]
-        place_text(ax, f"{shown:.0f} {tu}: {display(below, labels)} → {display(above, labels)}", anchors=anchors,
+        place_text(ax, f"{which}{shown:.0f} {tu}: {display(below, labels)} → {display(above, labels)}", anchors=anchors,
                    obstacles=obstacles, fontsize=7, color="0.25")
 
 
