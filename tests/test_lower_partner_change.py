@@ -110,6 +110,20 @@ def test_lower_partner_change_in_the_outputs(alpha_ti):
     assert f"T [K] {T_c!r}" in line and "BCC_A2 below, LIQUID above" in line
     # the solvus's own partner changes stay where they were, along `change`
     assert alpha_ti.sizes["change"] == 0 and out["partner_changes"] == []
+    # the figure marks it beside the solvus's changes, and the lower end's dashed runs reach it from both sides
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from solubility.results.plotting import plot_solvus
+
+    ax = plot_solvus(alpha_ti, units="x")
+    assert any(t.get_text().startswith("lower end ") and "BCC_A2 → LIQUID" in t.get_text() for t in ax.texts)
+    x_c = float(alpha_ti.partner_low_change_X.values[0])
+    dashed = [ln for ln in ax.get_lines() if ln.get_linestyle() == "--"]
+    assert len(dashed) == 2 and all(np.any(np.isclose(ln.get_xdata(), x_c, rtol=1e-12)) for ln in dashed)
+    plt.close(ax.figure)
     # NetCDF round trip keeps the new dimension
     import xarray as xr
 
