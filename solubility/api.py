@@ -55,8 +55,10 @@ def solvus(database, phase: str, solute: str, temperatures, *, exclude: Sequence
     xarray.Dataset
         Dims ``T``; variables X (mole fraction), W (mass fraction), PPM (ppm by mass), Y (site fraction of the
         solute on its sublattice), partner, converged, reason, MU (J/mol); partner changes in
-        ``partner_change_T`` along ``change``. A temperature where the host is not stable holds NaN and a
-        reason, never a number. With `parameters`, their values are in the attr ``parameters`` (JSON).
+        ``partner_change_T`` along ``change``; the lower end of the host's field (``X_LOW``, ``partner_low``, ...),
+        its partner changes (``partner_low_change_T`` along ``change_low``) and where the field opens or closes
+        (``field_end_T``), see `solubility.results.lower_end`. A temperature where the host is not stable holds NaN
+        and a reason, never a number. With `parameters`, their values are in the attr ``parameters`` (JSON).
     """
     from solubility.calc import boundary
     from solubility.calc.host import prepare_host

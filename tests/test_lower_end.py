@@ -63,8 +63,12 @@ def test_no_lower_end_above_a3_and_none_below_the_eutectoid(austenite):
     assert status[1200.0] == "no_partner"
     assert status[990.0] == "host_unstable"
     assert np.isnan(austenite.X_LOW.values[list(austenite["T"].values).index(1200.0)])
+    # common practice, no source: the lower partner is ferrite wherever austenite has a lower end, so no change of
+    # the lower end's partner is reported (test_lower_partner_change.py has one, on the steel database)
+    assert austenite.sizes["change_low"] == 0
     for name in ("X_LOW", "W_LOW", "PPM_LOW", "Y_LOW", "partner_low", "status_low", "reason_low", "field_end_T",
-                 "field_end_X", "field_end_W", "field_end_PPM", "field_end_kind", "field_end_with"):
+                 "field_end_X", "field_end_W", "field_end_PPM", "field_end_kind", "field_end_with",
+                 "partner_low_change_T", "partner_low_change_X", "partner_low_below", "partner_low_above"):
         assert {"units", "long_name"} <= set(austenite[name].attrs), name
 
 

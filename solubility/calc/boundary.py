@@ -267,14 +267,20 @@ class _Engine:
         return BoundaryPoint(T, float("nan"), (), mu, status, reason)
 
     # ---------------------------------------------------------------- partner changes
-    def locate_change(self, a: BoundaryPoint, b: BoundaryPoint) -> PartnerChange:
-        """Locate the temperature between valid points a and b where the partner changes, to T_TOL."""
+    def locate_change(self, a: BoundaryPoint, b: BoundaryPoint, sign: float = 1.0) -> PartnerChange:
+        """Locate the temperature between valid points a and b (a.T < b.T) where the partner changes, to T_TOL.
+
+        The boundary against a's partner is followed in temperature and the driving force of b's new partner is
+        evaluated on it: negative on a's side, positive beyond the change; bisected to T_TOL. `sign` is that of
+        `solve_partner`: +1 for the upper end of the host's field (the solvus), -1 for its lower end
+        (`solubility.calc.lower`). Returns a change with T = nan where the new partner is not below zero at a.
+        """
         beta, gamma = a.partners[0], next(p for p in b.partners if p not in a.partners)
         T_lo, T_hi = a.T, b.T
         s_ref, y_beta, y_gamma = a.s, a.phase_y.get(beta), b.phase_y.get(gamma)
 
         def h(T: float) -> float | None:
-            sol = self.solve_partner(beta, T, s_ref, y_beta)
+            sol = self.solve_partner(beta, T, s_ref, y_beta, sign=sign)
             if sol is None:
                 return None
             s, _ = sol
@@ -291,7 +297,7 @@ class _Engine:
             else:
                 T_lo = mid
         T_star = 0.5 * (T_lo + T_hi)
-        sol = self.solve_partner(beta, T_star, s_ref, y_beta)
+        sol = self.solve_partner(beta, T_star, s_ref, y_beta, sign=sign)
         return PartnerChange(round(T_star, 3), a.partners, b.partners, sol[0] if sol else float("nan"))
 
 
@@ -320,12 +326,15 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None, 
     points: list[BoundaryPoint | None] = [None] * T.size
     lows: list[BoundaryPoint | None] = [None] * T.size
     changes: list[PartnerChange] = []
+    low_changes: list[PartnerChange] = []  # changes of the lower end's partner
     field_ends: list = []
     field_y: list[Mapping] = []  # phase constitutions at each field end (for the partners' names)
     ends: list[tuple[Mapping, Mapping]] = []  # phase constitutions of the points either side of each change
+    low_ends: list[tuple[Mapping, Mapping]] = []  # the same for the lower end's changes
     prev: BoundaryPoint | None = None
     before: BoundaryPoint | None = None
     last: tuple[BoundaryPoint, BoundaryPoint] | None = None  # (upper, lower) at the previous temperature
+    prev_low: BoundaryPoint | None = None  # the last valid lower end of an unbroken run
     for k in order:
         Tk = float(T[k])
         point = low = None
@@ -345,6 +354,10 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None, 
             if extra:
                 changes.append(engine.locate_change(prev, point))
                 ends.append((prev.phase_y, point.phase_y))
+        if low is not None and low.valid and prev_low is not None and Tk > prev_low.T \
+                and any(p not in prev_low.partners for p in low.partners):
+            low_changes.append(engine.locate_change(prev_low, low, sign=-1.0))
+            low_ends.append((prev_low.phase_y, low.phase_y))
         if ends_solver is not None and last is not None and Tk > last[0].T:
             inside = [pt.status in ("ok", "no_partner") for pt in (last[0], point)]
             unstable = [pt.status == "host_unstable" for pt in (last[0], point)]
@@ -358,14 +371,20 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None, 
             prev, before = point, prev
         elif point.status != "failed":
             prev = before = None  # the line is broken: start the next point from nothing
+        if low is not None and low.valid:
+            prev_low = low
+        elif low is None or low.status != "failed":
+            prev_low = None  # no lower end here: a change of its partner is not sought across the gap
     view = engine.system
     if hasattr(view, "label"):
         points = [relabel(view, p) for p in points]
         lows = [None if p is None else relabel(view, p) for p in lows]
         changes = [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
                    for c, (lo, hi) in zip(changes, ends, strict=True)]
+        low_changes = [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
+                       for c, (lo, hi) in zip(low_changes, low_ends, strict=True)]
         field_ends = [replace(f, partners=partner_names(view, f.partners, y))
                       for f, y in zip(field_ends, field_y, strict=True)]
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),
                       np.asarray(system.molar_masses), tuple(req.candidates), system.phases[host.phase].moles,
-                      tuple(lows) if lower else (), tuple(field_ends))
+                      tuple(lows) if lower else (), tuple(field_ends), tuple(low_changes))

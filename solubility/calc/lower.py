@@ -14,6 +14,10 @@ side the lower partner's driving force at the upper boundary is negative, beyond
 lower end opens or closes at zero solute content (austenite of an alloy at its A3 temperature): located by
 bisection on whether the host is stable at the smallest content searched; its composition there is reported as
 not a number (zero, below the searched range) and the phase that replaces the host is named.
+
+Where the lower end's partner changes between two temperatures of the line (alpha titanium's lower partner is
+beta below the beta + alpha + liquid temperature, the liquid above it), `solubility.calc.boundary.solvus_line`
+locates the change to `T_TOL` with the solvus's own `_Engine.locate_change`, called with ``sign=-1``.
 """
 
 from __future__ import annotations

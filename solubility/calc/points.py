@@ -87,6 +87,7 @@ class SolvusLine:
     host_moles: np.ndarray  # (n_el, ny): moles of each element per formula unit of the host = host_moles @ y
     lower: tuple[BoundaryPoint, ...] = ()  # the lower end of the field at each temperature (empty: not solved)
     field_ends: tuple = ()  # `solubility.calc.lower.FieldEnd`: where the host's field opens or closes
+    lower_changes: tuple[PartnerChange, ...] = ()  # where the lower end's partner changes (located to T_TOL)
 
 
 @dataclass(frozen=True)

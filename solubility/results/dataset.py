@@ -19,7 +19,8 @@ DF_OTHER    J/mol    largest driving force of any other candidate phase (<= 0 on
 
 Along ``change``: ``partner_change_T`` (K), ``partner_change_X``, ``partner_change_W``, ``partner_change_PPM``,
 ``partner_below``, ``partner_above``. The lower end of the host's field (``X_LOW``, ``partner_low``,
-``status_low``, ...) and where the field opens or closes (along ``field_end``): `solubility.results.lower_end`.
+``status_low``, ...), where the field opens or closes (along ``field_end``) and where the lower end's partner
+changes (along ``change_low``): `solubility.results.lower_end`.
 0-d: the most solute on the line (``extreme_*``) and the Arrhenius fit
 (``fit_*``), see `solubility.results.summary`.
 
@@ -289,8 +290,10 @@ def csv_text(ds) -> str:
         units = ds[name].attrs.get("units")
         buf.write(f"# {name}{f' [{units}]' if units else ''}: {_cell(ds[name].values.item())}"
                   f"  ({ds[name].attrs['long_name']})\n")
-    from solubility.results.lower_end import CSV_COLUMNS
+    from solubility.results.lower_end import CSV_COLUMNS, lower_change_csv
 
+    for text in lower_change_csv(ds, _cell):
+        buf.write(text)
     for i in range(ds.sizes.get("field_end", 0)):
         buf.write(f"# field_end: T [K] {_cell(ds['field_end_T'].values[i])}, X [1] "
                   f"{_cell(ds['field_end_X'].values[i])}, W [1] {_cell(ds['field_end_W'].values[i])}, "

@@ -22,6 +22,10 @@ field_end_PPM   ppm     parts per million by mass there
 field_end_kind  -       "opens" (with rising temperature the field appears) or "closes" (it disappears)
 field_end_with  -       the phases the host meets there, joined by "+"
 ============== ======= ==========================================================================================
+
+Along ``change_low``, where the lower end's partner changes (located to 0.01 K as the solvus's partner changes
+along ``change``): ``partner_low_change_T`` (K), ``partner_low_change_X``, ``partner_low_change_W`` (1),
+``partner_low_change_PPM`` (ppm) of the solute in the host there, ``partner_low_below``, ``partner_low_above``.
 """
 
 from __future__ import annotations
@@ -30,7 +34,8 @@ import math
 
 import numpy as np
 
-__all__ = ["CSV_COLUMNS", "field_end_lines", "lower_json", "lower_lines", "lower_runs", "lower_variables"]
+__all__ = ["CSV_COLUMNS", "field_end_lines", "lower_change_csv", "lower_change_lines", "lower_json", "lower_lines",
+           "lower_runs", "lower_variables"]
 
 #: the CSV columns of the lower end (after the solvus's own)
 CSV_COLUMNS = ["X_LOW", "W_LOW", "WT%_LOW", "PPM_LOW", "Y_LOW", "partner_low", "status_low", "reason_low"]
@@ -51,6 +56,8 @@ def lower_variables(line, solute: str, where: str, composition) -> dict:
             X[i], W[i], Y[i] = composition(line, p.s)
     ends = line.field_ends
     xw = np.array([composition(line, f.s)[:2] for f in ends]).reshape(-1, 2)
+    changes = getattr(line, "lower_changes", ())
+    cxw = np.array([composition(line, c.s)[:2] for c in changes]).reshape(-1, 2)
     return {
         "X_LOW": ("T", X, {"units": "1", "long_name": f"mole fraction of {solute} {where} at the lower end of "
                                                      "its field"}),
@@ -79,6 +86,21 @@ def lower_variables(line, solute: str, where: str, composition) -> dict:
                            {"units": "", "long_name": "opens or closes, with rising temperature"}),
         "field_end_with": ("field_end", np.array(["+".join(f.partners) for f in ends], dtype=object),
                            {"units": "", "long_name": "phases the host meets where its field opens or closes"}),
+        "partner_low_change_T": ("change_low", np.array([c.T for c in changes], dtype=float),
+                                 {"units": "K", "long_name": "temperature where the lower end's partner changes"}),
+        "partner_low_change_X": ("change_low", cxw[:, 0],
+                                 {"units": "1", "long_name": f"mole fraction of {solute} {where} at the lower end "
+                                                             "where its partner changes"}),
+        "partner_low_change_W": ("change_low", cxw[:, 1],
+                                 {"units": "1", "long_name": f"mass fraction of {solute} {where} at the lower end "
+                                                             "where its partner changes"}),
+        "partner_low_change_PPM": ("change_low", cxw[:, 1] * 1e6,
+                                   {"units": "ppm", "long_name": f"{solute} {where} at the lower end where its "
+                                                                 "partner changes, ppm by mass"}),
+        "partner_low_below": ("change_low", np.array(["+".join(c.below) for c in changes], dtype=object),
+                              {"units": "", "long_name": "lower end's partner below the change"}),
+        "partner_low_above": ("change_low", np.array(["+".join(c.above) for c in changes], dtype=object),
+                              {"units": "", "long_name": "lower end's partner above the change"}),
     }
 
 
@@ -108,7 +130,48 @@ def lower_json(ds) -> dict:
         "lower_status": [str(v) for v in ds["status_low"].values],
         "lower_reason": [str(v) for v in ds["reason_low"].values],
         "field_ends": ends,
+        **({"lower_partner_changes": _changes(ds)} if "partner_low_change_T" in ds else {}),
     }
+
+
+def _changes(ds) -> list[dict]:
+    """The lower end's partner changes as JSON objects (the keys of the solvus's ``partner_changes``)."""
+    out = []
+    for t, x, w, b, a in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
+                             ds["partner_low_change_W"].values, ds["partner_low_below"].values,
+                             ds["partner_low_above"].values, strict=True):
+        w = _finite(w)
+        out.append({"temperature_K": _finite(t), "mole_fraction": _finite(x), "mass_fraction": w,
+                    "wt_percent": None if w is None else 100.0 * w, "ppm": None if w is None else 1e6 * w,
+                    "below": str(b).split("+"), "above": str(a).split("+")})
+    return out
+
+
+def lower_change_csv(ds, cell) -> list[str]:
+    """The CSV header lines (``# lower_partner_change: ...``) of the lower end's partner changes; `cell(value)`
+    writes a number in full precision."""
+    if "partner_low_change_T" not in ds:
+        return []
+    return [f"# lower_partner_change: T [K] {cell(t)}, X [1] {cell(x)}, W [1] {cell(w)}, {b} below, {a} above\n"
+            for t, x, w, b, a in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
+                                     ds["partner_low_change_W"].values, ds["partner_low_below"].values,
+                                     ds["partner_low_above"].values, strict=True)]
+
+
+def lower_change_lines(ds, composition, temperature) -> list[str]:
+    """Table lines of the lower end's partner changes (beside the solvus's partner changes)."""
+    if "partner_low_change_T" not in ds:
+        return []
+    out = []
+    for Tc, xc, wc, below, above in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
+                                        ds["partner_low_change_W"].values, ds["partner_low_below"].values,
+                                        ds["partner_low_above"].values, strict=True):
+        if math.isfinite(float(Tc)):
+            out.append(f"lower end's partner changes at {temperature(float(Tc))}: {below} below, {above} above; "
+                       f"{composition(float(xc), float(wc))}")
+        else:
+            out.append(f"lower end's partner changes at an unlocated temperature: {below} below, {above} above")
+    return out
 
 
 def lower_lines(ds, column) -> list[str]:

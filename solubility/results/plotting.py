@@ -2,9 +2,9 @@
 
 Composition is on the horizontal axis and temperature on the vertical one, as on a phase diagram. Each run of
 temperatures with one partner is drawn as its own segment, in one colour per partner on every panel, with a
-marker at every computed point. Partner changes are dotted lines labelled with their temperature; the most
-solute on the line is marked with a star and annotated with its composition and temperature. Labels are placed
-where they touch no data; a segment too small to see on a linear axis is shown enlarged in an inset.
+marker at every computed point. Partner changes (of the lower end too) are dotted lines labelled with their
+temperature; the most solute on the line is marked with a star and annotated with its composition and temperature.
+Labels are placed where they touch no data; a segment too small to see on a linear axis is shown enlarged in an inset.
 Temperatures on figures are rounded to whole degrees (a database's invariant temperatures are uncertain by a
 few kelvin); compositions to three significant digits. Phase names are the database's unless `labels` maps
 them to display names (``{"BCC_A2": "ferrite"}``).
@@ -27,7 +27,6 @@ __all__ = ["apparent_enthalpy", "plot_arrhenius", "plot_solvus", "save_solvus_fi
 
 UNITS = {"wt%": ("W", 100.0, "wt%"), "at%": ("X", 100.0, "at%"), "ppm": ("PPM", 1.0, "ppm by mass"),
          "x": ("X", 1.0, "mole fraction")}
-_CHANGE_VAR = {"W": "partner_change_W", "X": "partner_change_X", "PPM": "partner_change_PPM"}
 TEMPERATURES = ("K", "C")
 MARKER = {"marker": "o", "ms": 3.0}
 #: a segment narrower than this fraction of the linear axis is shown enlarged in an inset
@@ -78,14 +77,18 @@ def partner_colours(ds) -> dict[str, str]:
     return out
 
 
-def _segment_xy(ds, partner: str, idx: np.ndarray, var: str, factor: float, temperature: str):
-    """Composition and temperature of a segment, run on to the located changes at its ends."""
+def _segment_xy(ds, partner: str, idx: np.ndarray, var: str, factor: float, temperature: str, low: bool = False):
+    """Composition and temperature of a segment, run on to the located changes at its ends (of the lower end's
+    partner with `low`)."""
     T = ds["T"].values
-    xs, ts = list(ds[var].values[idx] * factor), [_shown(t, temperature) for t in T[idx]]
+    xs, ts = list(ds[f"{var}_LOW" if low else var].values[idx] * factor), [_shown(t, temperature) for t in T[idx]]
     steps = np.diff(np.sort(T[np.isfinite(T)]))
     step = float(steps.max()) if steps.size else 0.0
-    for comp, Tc, below, above in zip(ds[_CHANGE_VAR[var]].values, ds["partner_change_T"].values,
-                                      ds["partner_below"].values, ds["partner_above"].values, strict=True):
+    p = "partner_low" if low else "partner"
+    if f"{p}_change_T" not in ds:
+        return np.array(xs), np.array(ts)
+    for comp, Tc, below, above in zip(ds[f"{p}_change_{var}"].values, ds[f"{p}_change_T"].values,
+                                      ds[f"{p}_below"].values, ds[f"{p}_above"].values, strict=True):
         if not (math.isfinite(float(comp)) and math.isfinite(float(Tc))) or partner not in (below, above):
             continue
         if T[idx[-1]] < Tc < T[idx[-1]] + 2 * step and partner == below:
@@ -129,9 +132,9 @@ def _draw_segments(ax, ds, var, factor, temperature, labels, colours):
     n_upper = len(drawn)
     from solubility.results.lower_end import lower_runs
 
-    T, low = ds["T"].values, ds[f"{var}_LOW"].values if f"{var}_LOW" in ds else None
     for partner, idx in lower_runs(ds):  # the lower end of the field: dashed, in the same colours
-        xs, ts = _to_field_ends(ds, partner, low[idx] * factor, T[idx], var, factor, temperature)
+        xs, ts = _segment_xy(ds, partner, idx, var, factor, temperature, low=True)
+        xs, ts = _to_field_ends(ds, partner, xs, None, var, factor, temperature, ts)
         first = partner not in {p for p, _, _ in drawn[n_upper:]}
         ax.plot(xs, ts, "--", color=colours[partner], lw=1.4, **MARKER,
                 label=f"lower end: {host} + {display(partner, labels)}" if first else None)
@@ -141,8 +144,13 @@ def _draw_segments(ax, ds, var, factor, temperature, labels, colours):
 
 def _change_lines(ax, ds, temperature, labels, obstacles):
     tu = _tu(temperature)
-    for Tc, below, above in zip(ds["partner_change_T"].values, ds["partner_below"].values,
-                                ds["partner_above"].values, strict=True):
+    events = [("", Tc, below, above) for Tc, below, above in zip(
+        ds["partner_change_T"].values, ds["partner_below"].values, ds["partner_above"].values, strict=True)]
+    if "partner_low_change_T" in ds:  # the lower end's partner changes (`solubility.results.lower_end`)
+        events += [("lower end ", Tc, below, above) for Tc, below, above in zip(
+            ds["partner_low_change_T"].values, ds["partner_low_below"].values, ds["partner_low_above"].values,
+            strict=True)]
+    for which, Tc, below, above in events:
         if not math.isfinite(float(Tc)):
             continue
         shown = _shown(float(Tc), temperature)
@@ -151,7 +159,7 @@ def _change_lines(ax, ds, temperature, labels, obstacles):
         fy = ax.transLimits.transform((ax.get_xlim()[0], shown))[1]
         anchors = [(fx, fy + dy, ha, va) for dy, va in ((0.006, "bottom"), (-0.006, "top"))
                    for fx, ha in ((0.02, "left"), (0.98, "right"), (0.5, "center"))]
-        place_text(ax, f"{shown:.0f} {tu}: {display(below, labels)} → {display(above, labels)}", anchors=anchors,
+        place_text(ax, f"{which}{shown:.0f} {tu}: {display(below, labels)} → {display(above, labels)}", anchors=anchors,
                    obstacles=obstacles, fontsize=7, color="0.25")
 
 

@@ -75,8 +75,9 @@ def solvus_table(ds) -> str:
                          f"{_composition(float(xc), float(wc))}")
         else:
             lines.append(f"partner changes at an unlocated temperature: {below} below, {above} above")
-    from solubility.results.lower_end import field_end_lines, lower_lines
+    from solubility.results.lower_end import field_end_lines, lower_change_lines, lower_lines
 
+    lines += lower_change_lines(ds, _composition, _temperature)
     lines += field_end_lines(ds, _composition, _temperature)
     lines += lower_lines(ds, column)
     if "extreme_X" in ds and math.isfinite(float(ds["extreme_X"])):

@@ -54,7 +54,7 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
     parts = []
     for i in order:
         ds = canonical(results[i]).drop_vars("T_C", errors="ignore")
-        for dim in ("change", "field_end"):
+        for dim in ("change", "field_end", "change_low"):
             if dim in ds.dims:
                 ds = ds.assign_coords({dim: np.arange(ds.sizes[dim])})
         parts.append(ds.assign_coords(case=cases[i].name).expand_dims("case"))
@@ -64,7 +64,8 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
         fills = {n: _fill(v.dtype) for p in parts for n, v in p.data_vars.items()}
         ds = xr.concat(parts, dim="case", join="outer", fill_value=fills, combine_attrs="drop_conflicts",
                        coords="minimal", data_vars="all")
-        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars(["change", "field_end"], errors="ignore")
+        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars(["change", "field_end", "change_low"],
+                                                                         errors="ignore")
         ds.attrs = {k: v for k, v in results[order[0]].attrs.items() if _is_global(k)}
         ds["T"].attrs = dict(results[order[0]]["T"].attrs)
     else:
