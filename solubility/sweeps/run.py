@@ -23,7 +23,7 @@ from solubility.sweeps.assemble import assemble
 from solubility.sweeps.job import Case, check_unique_names
 from solubility.sweeps.store import Store
 
-__all__ = ["DEFAULT_CONNECT_TIMEOUT", "check_databases", "run_case", "sweep"]
+__all__ = ["DEFAULT_CONNECT_TIMEOUT", "Progress", "check_databases", "run_case", "sweep"]
 
 #: seconds to wait for a dask scheduler to answer before giving up
 DEFAULT_CONNECT_TIMEOUT = 10.0
@@ -38,13 +38,10 @@ def run_case(case: Case) -> tuple[str, Any]:
     from solubility import solvus, uptake
     from solubility.sweeps.kinds import uptake_arguments
 
+    engine, extra = (uptake, uptake_arguments(case)) if case.kind == "uptake" else (solvus, {})
     try:
-        if case.kind == "uptake":
-            return "", uptake(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
-                              fix=case.solvus_fix, balance=case.balance, pressure=case.pressure,
-                              **uptake_arguments(case))
-        return "", solvus(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
-                          fix=case.solvus_fix, balance=case.balance, pressure=case.pressure)
+        return "", engine(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
+                          fix=case.solvus_fix, balance=case.balance, pressure=case.pressure, **extra)
     except Exception as exc:  # a sweep records the failure of one case and goes on
         return one_line(exc), None
 
@@ -104,40 +101,44 @@ def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = No
         raise InputError("resume needs a store (the folder of the run to resume)")
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 0):
         raise InputError(f"workers must be a whole number >= 0 (0: run in this process), got {workers!r}")
+    if progress not in (None, False, True) and not callable(progress):
+        raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
     if isinstance(scheduler, str):
         check_address(scheduler)
     check_databases(case_list)
+    own = progress = Progress() if progress is True else progress
     st = Store.open(store, case_list, resume=resume, overwrite=overwrite) if store is not None else None
+    outcomes: Any = ()
     try:
         results = st.finished() if (st is not None and resume) else {}
-        errors_: dict[int, str] = {}
+        failed: dict[int, str] = {}
         todo = [(i, c) for i, c in enumerate(case_list) if i not in results]
-        report = _progress(progress, len(case_list), len(results))
-        outcomes: Any = ()
-        try:
-            if scheduler is not None:
-                outcomes = _dask(todo, scheduler, connect_timeout)
-            elif workers == 0:
-                outcomes = ((i, *run_case(c)) for i, c in todo)
+        if progress:
+            progress(len(results), len(case_list), None, "start")
+        if scheduler is not None:
+            outcomes = _dask(todo, scheduler, connect_timeout)
+        elif workers == 0:
+            outcomes = ((i, *run_case(c)) for i, c in todo)
+        else:
+            outcomes = _local(todo, min(workers or _cpus(), len(todo)))
+        for index, error, ds in outcomes:
+            if error and strict:
+                raise _case_error(case_list[index], error)
+            if error:
+                failed[index] = error
             else:
-                outcomes = _local(todo, min(workers or _cpus(), len(todo)))
-            for index, error, ds in outcomes:
-                if error:
-                    errors_[index] = error
-                    if strict:
-                        raise _case_error(case_list[index], error)
-                else:
-                    if st is not None:
-                        st.write(index, ds)
-                    results[index] = ds
-                report(case_list[index], "failed" if error else "ok")
-        finally:
-            getattr(report, "close", lambda: None)()
-            getattr(outcomes, "close", lambda: None)()  # a generator's finally: stop workers, cancel tasks
+                if st is not None:
+                    st.write(index, ds)
+                results[index] = ds
+            if progress:
+                progress(len(results) + len(failed), len(case_list), case_list[index], "failed" if error else "ok")
     finally:
+        getattr(outcomes, "close", lambda: None)()  # a generator's finally: stop workers, cancel tasks
+        if isinstance(own, Progress):
+            own.close()
         if st is not None:
             st.close()
-    return assemble(case_list, results, errors_)
+    return assemble(case_list, results, failed)
 
 
 def _as_cases(cases) -> list[Case]:
@@ -190,30 +191,32 @@ def _case_error(case: Case, message: str) -> SolubilityError:
     return SolubilityError(f"case {case.name!r} failed: {message}")
 
 
-def _progress(progress, total: int, done: int) -> Callable:
-    if progress is None or progress is False:
-        return lambda case, status: None
-    if progress is True:
-        from tqdm import tqdm
+class Progress:
+    """A `sweep` progress callable: a tqdm bar on standard error (`bar` False: counting only).
 
-        bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
+    ``done`` counts the finished cases (those taken from the store too), ``ran`` the cases run by this sweep.
+    """
 
-        def update(case, status):
-            bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
-            bar.update(1)
+    def __init__(self, bar: bool = True) -> None:
+        self.show, self.bar, self.done, self.ran = bar, None, 0, 0
 
-        update.close = bar.close
-        return update
-    if not callable(progress):
-        raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
-    count = [done]
-    progress(done, total, None, "start")
+    def __call__(self, done: int, total: int, case: Case | None, status: str) -> None:
+        self.done = done
+        if case is None and self.show:
+            from tqdm import tqdm
 
-    def call(case, status):
-        count[0] += 1
-        progress(count[0], total, case, status)
+            self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
+        elif case is not None:
+            self.ran += 1
+            if self.bar is not None:
+                self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
+                self.bar.update(1)
 
-    return call
+    def close(self) -> None:
+        """Close the bar."""
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
 
 
 def _cpus() -> int:
@@ -232,24 +235,28 @@ def _by_system(items: list[tuple[int, Case]]) -> list[tuple[int, Case]]:
     return sorted(items, key=lambda item: first.setdefault(item[1].system_key, len(first)))
 
 
+def _outcomes(futures: dict, completed: Iterable, died: str = "") -> Iterator[tuple[int, str, Any]]:
+    """``(index, error, Dataset)`` of each future as it completes; a lost task (its worker died) is an error."""
+    for future in completed:
+        try:
+            error, ds = future.result()
+        except Exception as exc:
+            error, ds = f"{died}{one_line(exc)}", None
+        yield futures[future], error, ds
+
+
 def _local(items: list[tuple[int, Case]], workers: int) -> Iterator[tuple[int, str, Any]]:
     if not items:
         return
-    method = "forkserver" if sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods() \
-        else "spawn"
-    ctx = multiprocessing.get_context(method)
-    if method == "forkserver":
+    forkserver = sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods()
+    ctx = multiprocessing.get_context("forkserver" if forkserver else "spawn")
+    if forkserver:
         ctx.set_forkserver_preload(list(PRELOAD))
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_ignore_sigint)
     finished = False
     try:
         futures = {pool.submit(run_case, case): index for index, case in _by_system(items)}
-        for future in as_completed(futures):
-            try:
-                error, ds = future.result()
-            except Exception as exc:  # a worker died (killed, out of memory): BrokenProcessPool
-                error, ds = f"WorkerDied: {one_line(exc)}", None
-            yield futures[future], error, ds
+        yield from _outcomes(futures, as_completed(futures), "WorkerDied: ")  # BrokenProcessPool: a worker died
         finished = True
     finally:
         if not finished:  # interrupted: stop the workers now rather than after their current case
@@ -317,12 +324,7 @@ def _dask(items: list[tuple[int, Case]], scheduler: Any, timeout: float) -> Iter
             where = home.setdefault(case.system_key, workers[len(home) % len(workers)])
             restrict = {"workers": [where], "allow_other_workers": True} if where else {}
             futures[client.submit(run_case, case, pure=False, **restrict)] = index
-        for future in distributed.as_completed(list(futures), loop=client.loop):
-            try:
-                error, ds = future.result()
-            except Exception as exc:  # the cluster lost the task (a worker died, ...)
-                error, ds = one_line(exc), None
-            yield futures[future], error, ds
+        yield from _outcomes(futures, distributed.as_completed(list(futures), loop=client.loop))
     finally:
         client.cancel(list(futures))
         if own:
