@@ -1,16 +1,13 @@
-"""One Dataset along ``case`` from the per-case solvus Datasets (`xarray.concat`, outer join), and its JSON and CSV.
+"""One Dataset along ``case`` from the per-case Datasets (`xarray.concat`, outer join), and its JSON and CSV.
 
-Layout: dims ``case`` and ``T``, the sorted union of every case's temperatures (K), with ``T_C`` (degC).
-``requested`` is True at a case's own temperatures; elsewhere the values are padding (NaN, ``""``, False).
-A failed case has padding everywhere. Other dims of the solvus (``component`` of ``MU``) are the sorted union
-over the cases, padded the same way; ``change`` (partner changes) is padded to the longest.
-Coordinates along ``case``: ``case`` (the names), the inputs ``database`` (as given), ``phase``, ``solute``,
-``pressure`` (Pa), ``fix`` (JSON), ``exclude`` (joined by ","), ``balance`` (the one the solvus used), then
-``case_status`` ("ok"/"failed"), ``case_error`` and ``kind`` ("solvus" or "uptake"), then the other per-case
-attributes of the solvus or uptake result (``database_name``, ``database_sha256``, ``site_ratios``,
-``surroundings``, ...; "" or NaN where a case's kind has none). Uptake variables (``activity``, ``MU_SOLUTE``,
-...) are padding on solvus cases and the other way round. Attributes: the package
-versions and caution of the first finished case, ``title``, ``job_sha256`` and ``created``.
+Dims ``case`` and ``T`` (the sorted union of the cases' temperatures, K; ``T_C`` in degC); ``requested`` is True
+at a case's own temperatures, elsewhere values are padding (NaN, ``""``, False), and a failed case is padding
+everywhere, as are uptake variables on solvus cases and the other way round. Other dims (``component`` of ``MU``)
+are the union over the cases; ``change`` is padded to the longest. Coordinates along ``case``: the inputs
+(`INPUT_COORDS`: ``fix`` as JSON, ``exclude`` joined by ",", ``balance`` the one used), ``case_status``,
+``case_error``, ``kind``, then the other attributes of each result (``database_name``, ``site_ratios``, ...;
+"" or NaN where a case has none). Attributes: the versions and caution of the first finished case, ``title``,
+``job_sha256`` and ``created``.
 """
 
 from __future__ import annotations
@@ -85,22 +82,21 @@ def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[
 
 def _case_coords(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[int, str]) -> dict[str, Any]:
     def text(values, long_name):
-        return ("case", np.array(values, dtype=str), {"long_name": long_name})
+        return ("case", np.array(list(values), dtype=str), {"long_name": long_name})
 
-    n = len(cases)
+    n, ok = len(cases), [i in results for i in range(len(cases))]
     out = {
-        "database": text([c.database for c in cases], "database (path or bundled name)"),
-        "phase": text([c.phase for c in cases], "host phase"),
-        "solute": text([c.solute for c in cases], "solute element"),
+        "database": text((c.database for c in cases), "database (path or bundled name)"),
+        "phase": text((c.phase for c in cases), "host phase"),
+        "solute": text((c.solute for c in cases), "solute element"),
         "pressure": ("case", np.array([c.pressure for c in cases]), {"units": "Pa", "long_name": "pressure"}),
-        "fix": text([json.dumps(c.fix_dict, sort_keys=True) for c in cases], "fixed u-fractions (JSON)"),
-        "exclude": text([",".join(c.exclude) for c in cases], "excluded phases"),
-        "balance": text([str(results[i].attrs.get("balance", "")) if i in results else (c.balance or "")
-                         for i, c in enumerate(cases)], "balance element"),
-        "kind": text([c.kind for c in cases], "case kind: solvus or uptake (`solubility.uptake`)"),
-        "case_status": text(["ok" if i in results else "failed" for i in range(n)], "case status: ok or failed"),
-        "case_error": text(["" if i in results else errors.get(i, "not run") for i in range(n)],
-                           "error of a failed case"),
+        "fix": text((json.dumps(c.fix_dict, sort_keys=True) for c in cases), "fixed u-fractions (JSON)"),
+        "exclude": text((",".join(c.exclude) for c in cases), "excluded phases"),
+        "balance": text((str(results[i].attrs.get("balance", "")) if ok[i] else (c.balance or "")
+                         for i, c in enumerate(cases)), "balance element"),
+        "kind": text((c.kind for c in cases), "case kind: solvus or uptake (`solubility.uptake`)"),
+        "case_status": text(("ok" if k else "failed" for k in ok), "case status: ok or failed"),
+        "case_error": text(("" if ok[i] else errors.get(i, "not run") for i in range(n)), "error of a failed case"),
     }
     keys = list(dict.fromkeys(k for i in sorted(results) for k in results[i].attrs
                               if k not in _DROPPED and not _is_global(k)))

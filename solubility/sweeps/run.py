@@ -1,15 +1,16 @@
-"""`sweep`: run many solvus cases (this process, a local process pool or dask.distributed), store, assemble.
+"""`sweep`: run many cases (in this process, a local process pool or dask.distributed), store, assemble.
 
-Local workers are a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where the platform has
-it (the server imports the solvus engine once; the calling process, which may run threads, is never forked)
-and "spawn" elsewhere. Cases are submitted grouped by compiled system (database, elements, phases), so that a
-worker mostly meets the system it has built already. On dask, a system's cases prefer one worker.
+The local pool is a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where there is one (the
+server imports the engine once; the caller, which may run threads, is never forked), else "spawn". Cases go
+grouped by compiled system (database, elements, phases), so that a worker mostly meets a system it has built;
+on dask, a system's cases prefer one worker.
 """
 
 from __future__ import annotations
 
 import asyncio
 import multiprocessing
+import os
 import re
 import signal
 import sys
@@ -198,30 +199,27 @@ class Progress:
     """
 
     def __init__(self, bar: bool = True) -> None:
-        self.show, self.bar, self.done, self.ran = bar, None, 0, 0
+        self.bar: Any = bar
+        self.done = self.ran = 0
 
     def __call__(self, done: int, total: int, case: Case | None, status: str) -> None:
-        self.done = done
-        if case is None and self.show:
+        self.done, self.ran = done, self.ran + (case is not None)
+        if case is None and self.bar is True:
             from tqdm import tqdm
 
             self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
-        elif case is not None:
-            self.ran += 1
-            if self.bar is not None:
-                self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
-                self.bar.update(1)
+        elif case is not None and not isinstance(self.bar, bool):
+            self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
+            self.bar.update(1)
 
     def close(self) -> None:
         """Close the bar."""
-        if self.bar is not None:
+        if not isinstance(self.bar, bool):
             self.bar.close()
-            self.bar = None
+        self.bar = False
 
 
 def _cpus() -> int:
-    import os
-
     return len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count() or 1
 
 
