@@ -51,11 +51,9 @@ _TYPES: dict[str, tuple[Any, str, Any]] = {
 
 
 def _kind(value: Any) -> str:
-    for types, name in ((bool, "a boolean"), ((int, float), "a number"), (str, "a string"), (Mapping, "a table"),
-                        ((list, tuple), "a list")):
-        if isinstance(value, types):
-            return name
-    return f"a {type(value).__name__}"
+    """What a TOML value is, in words."""
+    kinds = {bool: "a boolean", int: "a number", float: "a number", str: "a string", dict: "a table", list: "a list"}
+    return kinds.get(type(value), f"a {type(value).__name__}")
 
 
 def _check(key: str, value: Any) -> Any:
@@ -111,18 +109,11 @@ class Case:
 
     Parameters
     ----------
-    name, database
-        Unique name in the sweep (the ``case`` coordinate); TDB path (`read_job` makes paths relative to the job
-        file absolute) or bundled database name.
-    phase, solute, exclude
-        Host phase (``"BCC_A2"``), interstitial element (``"C"``), phases left out (stored sorted), upper-cased.
+    name, database, phase, solute, exclude, fix, balance, pressure
+        As in `solubility.solvus`; the unique ``name`` is the ``case`` coordinate. Names are upper-cased,
+        ``exclude`` stored sorted and ``fix`` as sorted ``(element, u)`` pairs; pressure in Pa (101325).
     temperatures
         K: ``"START:STOP:STEP"`` (STOP included) or numbers; stored strictly increasing, rounded to 1 uK.
-    fix
-        u-fractions of other host elements, each in (0, 1), summing to less than 1 (as in `solubility.solvus`);
-        stored as sorted ``(element, u)`` pairs.
-    balance, pressure
-        The host's balance element (None: found by the solvus); Pa, > 0 (default 101325).
     kind, activity, reference, partial_pressure, atmosphere, equilibrate_gas
         ``"solvus"`` (default) or ``"uptake"`` and its surroundings (`solubility.sweeps.kinds`).
 

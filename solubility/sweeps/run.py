@@ -55,45 +55,39 @@ def one_line(exc: BaseException) -> str:
 def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = None, scheduler: Any = None,
           store=None, resume: bool = False, progress: bool | Callable | None = None, strict: bool = False,
           overwrite: bool = False, connect_timeout: float = DEFAULT_CONNECT_TIMEOUT):
-    """Compute the solvus of many cases and gather them in one Dataset along ``case``.
+    """Compute the solvus (or uptake) of many cases and gather them in one Dataset along ``case``.
 
     Parameters
     ----------
     cases
-        `Case` objects or mappings of the keys of a case (as `read_job` returns or a ``[[case]]`` table holds);
-        names unique. Everything is validated, and every database read, before any case runs.
-    workers
-        Local worker processes (default: one per CPU, at most one per case); 0 runs the cases in this process.
-    scheduler
-        Run on dask.distributed instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
-    store
-        Folder where every finished case is written at once (see `solubility.sweeps.store`); locked while the
-        sweep runs.
-    resume
-        Keep the finished cases of `store` (checked against their sha256) and run the others.
+        `Case` objects or mappings of a case's keys, names unique; all validated, every database read, first.
+    workers, scheduler
+        Local worker processes (default one per CPU, at most one per case; 0: this process), or a dask
+        scheduler instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
+    store, resume, overwrite
+        Folder where each finished case is written at once, locked while the sweep runs
+        (`solubility.sweeps.store`); keep its finished cases (checked) and run the others; start it afresh
+        when it holds another job, or this one when not resuming.
     progress
-        True: a tqdm bar on standard error. A callable ``f(done, total, case, status)``: called first with
-        ``(cases taken from the store, total, None, "start")``, then after every case. None/False: nothing.
+        True: a tqdm bar on standard error; a callable ``f(done, total, case, status)``, called first with
+        ``(cases taken from the store, total, None, "start")`` then after every case; None/False: nothing.
     strict
         Raise the error of the first failed case (named after the case) instead of recording it.
-    overwrite
-        Start the store afresh when it holds another job, or this one when not resuming.
     connect_timeout
         Seconds to wait for the dask scheduler to answer.
 
     Returns
     -------
     xarray.Dataset
-        See `solubility.sweeps.assemble`: dims ``case`` and ``T`` (the union of the cases' temperatures, K),
-        ``requested`` marking each case's own points, the solvus variables, and the inputs and per-case
-        results as coordinates along ``case``. The same whichever executor ran it, and whether resumed.
+        Dims ``case`` and ``T`` (K) as `solubility.sweeps.assemble` describes; the same whichever executor ran
+        it, and whether resumed.
 
     Raises
     ------
     JobError, InputError
         A case or option is invalid, or a database lacks what a case asks for (before any work).
     OutputError
-        The store cannot be used, is locked by a running sweep, is damaged (`DamagedStoreError`) or cannot be written.
+        The store cannot be used, is locked, is damaged (`DamagedStoreError`) or cannot be written.
     """
     case_list = _as_cases(cases)
     if scheduler is not None and workers is not None:
