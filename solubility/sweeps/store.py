@@ -51,13 +51,11 @@ def canonical(ds):
     return ds
 
 
-def _read_json(path: Path, what: str, store: Path) -> Any:
-    try:
-        if path.stat().st_size > MAX_TEXT:
-            raise DamagedStoreError(store, f"{what} is larger than {MAX_TEXT} bytes")
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError, RecursionError):
-        raise DamagedStoreError(store, f"{what} cannot be read") from None
+def _read_text(store: Path, name: str) -> str:
+    """The text of the manifest or the journal; larger than `MAX_TEXT` bytes, the store is damaged."""
+    if (store / name).stat().st_size > MAX_TEXT:
+        raise DamagedStoreError(store, f"{name} is larger than {MAX_TEXT} bytes")
+    return (store / name).read_text(encoding="utf-8", errors="replace")
 
 
 class Store:
@@ -129,7 +127,10 @@ class Store:
 
     def _prepare(self, resume: bool, overwrite: bool) -> None:
         p = self.path
-        manifest = _read_json(p / MANIFEST, MANIFEST, p) if (p / MANIFEST).exists() else None
+        try:
+            manifest = json.loads(_read_text(p, MANIFEST)) if (p / MANIFEST).exists() else None
+        except (OSError, ValueError, RecursionError):
+            raise DamagedStoreError(p, f"{MANIFEST} cannot be read") from None
         if manifest is not None:
             if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
                 if resume or not overwrite:
@@ -185,12 +186,9 @@ class Store:
         """
         import xarray as xr
 
-        journal = self.path / JOURNAL
-        if not journal.exists():
+        if not (self.path / JOURNAL).exists():
             return {}
-        if journal.stat().st_size > MAX_TEXT:
-            raise DamagedStoreError(self.path, f"{JOURNAL} is larger than {MAX_TEXT} bytes")
-        lines = journal.read_text(encoding="utf-8", errors="replace").split("\n")[:-1]  # the rest: an append cut short
+        lines = _read_text(self.path, JOURNAL).split("\n")[:-1]  # what follows the last newline: an append cut short
         done: dict[int, Any] = {}
         for number, text in enumerate(lines, start=1):
             if not text.strip():

@@ -17,9 +17,7 @@ from __future__ import annotations
 
 import argparse
 import os
-import signal
 import sys
-import threading
 import time
 
 
@@ -111,9 +109,7 @@ def run(args: argparse.Namespace) -> int:
         check_address(args.scheduler)
     started = time.perf_counter()
     counter = Progress(bar=not args.quiet and sys.stderr.isatty())
-    main_thread = threading.current_thread() is threading.main_thread()
-    previous = signal.signal(signal.SIGTERM, _terminated) if main_thread else None
-    try:
+    try:  # SIGTERM raises Terminated, a KeyboardInterrupt (`solubility.cli.main` sets the handler)
         ds = sweep(cases, workers=args.workers, scheduler=args.scheduler, store=args.store, resume=args.resume,
                    progress=counter, strict=args.strict, overwrite=args.overwrite,
                    connect_timeout=args.connect_timeout)
@@ -124,13 +120,11 @@ def run(args: argparse.Namespace) -> int:
     except KeyboardInterrupt as exc:
         counter.close()
         kept = f"; {counter.done} finished cases are in the store, rerun with --resume" if args.store else ""
-        term = isinstance(exc, _Terminated | Terminated)
+        term = isinstance(exc, Terminated)
         print(f"error: sweep stopped by {'SIGTERM' if term else 'Ctrl-C'}: workers stopped, temporary files "
               f"removed, no output file written{kept}", file=sys.stderr)
         return 143 if term else 130
     finally:
-        if main_thread:
-            signal.signal(signal.SIGTERM, previous)
         counter.close()
     if args.json:
         emit_json(sweep_json(ds))
@@ -150,14 +144,6 @@ def _csv(ds) -> bytes:
     from solubility.sweeps import csv_text
 
     return csv_text(ds).encode("utf-8")
-
-
-class _Terminated(KeyboardInterrupt):
-    """SIGTERM, raised in the main thread so that every `finally` runs (workers stopped, store unlocked)."""
-
-
-def _terminated(signum, frame) -> None:
-    raise _Terminated
 
 
 def _check_outputs_are_not_inputs(args: argparse.Namespace, outputs: list, cases) -> None:
