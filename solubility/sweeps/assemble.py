@@ -1,16 +1,13 @@
-"""One Dataset along ``case`` from the per-case solvus Datasets (`xarray.concat`, outer join), and its JSON and CSV.
+"""One Dataset along ``case`` from the per-case Datasets (`xarray.concat`, outer join), and its JSON and CSV.
 
-Layout: dims ``case`` and ``T``, the sorted union of every case's temperatures (K), with ``T_C`` (degC).
-``requested`` is True at a case's own temperatures; elsewhere the values are padding (NaN, ``""``, False).
-A failed case has padding everywhere. Other dims of the solvus (``component`` of ``MU``) are the sorted union
-over the cases, padded the same way; ``change`` (partner changes) is padded to the longest.
-Coordinates along ``case``: ``case`` (the names), the inputs ``database`` (as given), ``phase``, ``solute``,
-``pressure`` (Pa), ``fix`` (JSON), ``exclude`` (joined by ","), ``balance`` (the one the solvus used), then
-``case_status`` ("ok"/"failed"), ``case_error`` and ``kind`` ("solvus" or "uptake"), then the other per-case
-attributes of the solvus or uptake result (``database_name``, ``database_sha256``, ``site_ratios``,
-``surroundings``, ...; "" or NaN where a case's kind has none). Uptake variables (``activity``, ``MU_SOLUTE``,
-...) are padding on solvus cases and the other way round. Attributes: the package
-versions and caution of the first finished case, ``title``, ``job_sha256`` and ``created``.
+Dims ``case`` and ``T`` (the sorted union of the cases' temperatures, K; ``T_C`` in degC); ``requested`` is True
+at a case's own temperatures, elsewhere values are padding (NaN, ``""``, False), and a failed case is padding
+everywhere, as are uptake variables on solvus cases and the other way round. Other dims (``component`` of ``MU``)
+are the union over the cases; ``change`` is padded to the longest. Coordinates along ``case``: the inputs
+(`INPUT_COORDS`: ``fix`` as JSON, ``exclude`` joined by ",", ``balance`` the one used), ``case_status``,
+``case_error``, ``kind``, then the other attributes of each result (``database_name``, ``site_ratios``, ...;
+"" or NaN where a case has none). Attributes: the versions and caution of the first finished case, ``title``,
+``job_sha256`` and ``created``.
 """
 
 from __future__ import annotations
@@ -33,6 +30,8 @@ from solubility.sweeps.store import canonical
 __all__ = ["assemble", "case_dataset", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
 
 #: solvus attributes that are inputs (coordinates already) or the sweep's own
+#: dimensions of events along a line (partner changes at either end, ends of the field), padded case by case
+_EVENT_DIMS = ("change", "field_end", "change_low")
 _DROPPED = {"created", "title", "phase", "solute", "pressure_Pa", "fix", "balance", "exclude"}
 INPUT_COORDS = ("database", "phase", "solute", "pressure", "fix", "exclude", "balance", "case_status", "case_error",
                 "kind")
@@ -46,75 +45,64 @@ def _is_global(key: str) -> bool:
     return key.endswith("_version") or key == "caution"
 
 
+def _value(value: Any) -> Any:
+    """An attribute as a case coordinate: a number as float, text as it is, anything else as JSON."""
+    if isinstance(value, int | float | np.number) and not isinstance(value, bool):
+        return float(value)
+    return value if isinstance(value, str) else json.dumps(np.asarray(value).tolist())
+
+
+def _part(case: Case, ds: Any, error: str | None):
+    """One case along ``case``: its Dataset (a failed case: its temperatures alone), ``requested``, and its
+    inputs, status and other attributes as variables (coordinates once the parts are concatenated)."""
+    import xarray as xr
+
+    if ds is None:
+        ds = xr.Dataset(coords={"T": list(case.temperatures)})
+    else:
+        ds = canonical(ds).drop_vars("T_C", errors="ignore")
+        ds = ds.assign_coords({d: np.arange(ds.sizes[d]) for d in _EVENT_DIMS if d in ds.dims})
+    info = {
+        "database": (case.database, {"long_name": "database (path or bundled name)"}),
+        "phase": (case.phase, {"long_name": "host phase"}),
+        "solute": (case.solute, {"long_name": "solute element"}),
+        "pressure": (case.pressure, {"units": "Pa", "long_name": "pressure"}),
+        "fix": (json.dumps(case.fix_dict, sort_keys=True), {"long_name": "fixed u-fractions (JSON)"}),
+        "exclude": (",".join(case.exclude), {"long_name": "excluded phases"}),
+        "balance": (str(ds.attrs.get("balance", "")) if error is None else case.balance or "",
+                    {"long_name": "balance element"}),
+        "kind": (case.kind, {"long_name": "case kind: solvus or uptake (`solubility.uptake`)"}),
+        "case_status": ("ok" if error is None else "failed", {"long_name": "case status: ok or failed"}),
+        "case_error": (error or "", {"long_name": "error of a failed case"}),
+    }
+    info.update({"database_name" if k == "database" else k: (_value(v), {}) for k, v in ds.attrs.items()
+                 if k not in _DROPPED and not _is_global(k)})
+    requested = ("T", np.ones(ds.sizes["T"], dtype=bool),
+                 {"long_name": "temperature asked for by the case (False: padding of the union of grids)"})
+    return ds.assign(requested=requested, **{k: ((), v, attrs) for k, (v, attrs) in info.items()}), list(info)
+
+
 def assemble(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[int, str]):
     """The sweep Dataset of the finished cases' Datasets (index -> Dataset) and the failed ones' messages."""
     import xarray as xr
 
-    order = sorted(results)
-    parts = []
-    for i in order:
-        ds = canonical(results[i]).drop_vars("T_C", errors="ignore")
-        for dim in ("change", "field_end", "change_low"):
-            if dim in ds.dims:
-                ds = ds.assign_coords({dim: np.arange(ds.sizes[dim])})
-        parts.append(ds.assign_coords(case=cases[i].name).expand_dims("case"))
-    T = np.unique(np.concatenate([np.asarray(c.temperatures, dtype=float) for c in cases]))
+    order = [*sorted(results), *(i for i in range(len(cases)) if i not in results)]  # variables in a result's order
+    parts = [_part(cases[i], results.get(i), None if i in results else errors.get(i, "not run")) for i in order]
     names = [c.name for c in cases]
-    if parts:
-        fills = {n: _fill(v.dtype) for p in parts for n, v in p.data_vars.items()}
-        ds = xr.concat(parts, dim="case", join="outer", fill_value=fills, combine_attrs="drop_conflicts",
-                       coords="minimal", data_vars="all")
-        ds = ds.reindex(case=names, T=T, fill_value=fills).drop_vars(["change", "field_end", "change_low"],
-                                                                         errors="ignore")
-        ds.attrs = {k: v for k, v in results[order[0]].attrs.items() if _is_global(k)}
-        ds["T"].attrs = dict(results[order[0]]["T"].attrs)
-    else:
-        ds = xr.Dataset(coords={"case": names, "T": ("T", T, {"units": "K", "long_name": "temperature"})})
+    fills = {n: _fill(v.dtype) for p, _ in parts for n, v in p.data_vars.items()}
+    ds = xr.concat([p.expand_dims(case=[cases[i].name]) for i, (p, _) in zip(order, parts, strict=True)], "case",
+                   join="outer", fill_value=fills, combine_attrs="drop_conflicts", coords="minimal", data_vars="all")
+    ds = ds.sel(case=names).set_coords(list(dict.fromkeys(k for _, keys in parts for k in keys)))
+    ds = ds.drop_vars(list(_EVENT_DIMS), errors="ignore")
+    first = results[order[0]] if results else None
+    ds.attrs = {k: v for k, v in first.attrs.items() if _is_global(k)} if first is not None else {}
+    ds["T"].attrs = dict(first["T"].attrs) if first is not None else {"units": "K", "long_name": "temperature"}
     ds["case"] = ("case", np.array(names, dtype=str), {"long_name": "case"})
-    requested = np.zeros((len(cases), T.size), dtype=bool)
-    for i, case in enumerate(cases):
-        requested[i, np.searchsorted(T, case.temperatures)] = True
-    ds["requested"] = (("case", "T"), requested,
-                       {"long_name": "temperature asked for by the case (False: padding of the union of grids)"})
-    ds = ds.assign_coords(T_C=("T", T - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}))
-    ds = ds.assign_coords(_case_coords(cases, results, errors))
+    ds = ds.assign_coords(T_C=("T", ds["T"].values - ZERO_CELSIUS, {"units": "degC", "long_name": "temperature"}))
     kinds = " and ".join(sorted({c.kind for c in cases}))
     ds.attrs.update(title=f"sweep of {len(cases)} {kinds} cases", job_sha256=job_sha256(list(cases)),
                     created=datetime.now(UTC).isoformat(timespec="seconds"))
     return ds
-
-
-def _case_coords(cases: Sequence[Case], results: Mapping[int, Any], errors: Mapping[int, str]) -> dict[str, Any]:
-    def text(values, long_name):
-        return ("case", np.array(values, dtype=str), {"long_name": long_name})
-
-    n = len(cases)
-    out = {
-        "database": text([c.database for c in cases], "database (path or bundled name)"),
-        "phase": text([c.phase for c in cases], "host phase"),
-        "solute": text([c.solute for c in cases], "solute element"),
-        "pressure": ("case", np.array([c.pressure for c in cases]), {"units": "Pa", "long_name": "pressure"}),
-        "fix": text([json.dumps(c.fix_dict, sort_keys=True) for c in cases], "fixed u-fractions (JSON)"),
-        "exclude": text([",".join(c.exclude) for c in cases], "excluded phases"),
-        "balance": text([str(results[i].attrs.get("balance", "")) if i in results else (c.balance or "")
-                         for i, c in enumerate(cases)], "balance element"),
-        "kind": text([c.kind for c in cases], "case kind: solvus or uptake (`solubility.uptake`)"),
-        "case_status": text(["ok" if i in results else "failed" for i in range(n)], "case status: ok or failed"),
-        "case_error": text(["" if i in results else errors.get(i, "not run") for i in range(n)],
-                           "error of a failed case"),
-    }
-    keys = list(dict.fromkeys(k for i in sorted(results) for k in results[i].attrs
-                              if k not in _DROPPED and not _is_global(k)))
-    for key in keys:
-        values = [results[i].attrs.get(key) if i in results else None for i in range(n)]
-        present = [v for v in values if v is not None]
-        if present and all(isinstance(v, int | float | np.number) and not isinstance(v, bool) for v in present):
-            column = np.array([np.nan if v is None else float(v) for v in values])
-        else:
-            column = np.array(["" if v is None else v if isinstance(v, str) else json.dumps(np.asarray(v).tolist())
-                               for v in values], dtype=str)
-        out["database_name" if key == "database" else key] = ("case", column)
-    return out
 
 
 def case_dataset(ds, name: str):

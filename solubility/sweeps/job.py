@@ -1,24 +1,13 @@
 """Cases and TOML job files, validated before any work (imports nothing heavy: no pycalphad, no xarray).
 
-A job file has three optional top-level tables (at least one case in all):
-
-``[defaults]``
-    Any case key but ``name``, for every case and product that does not give it (given, it replaces the default
-    whole: tables such as ``fix`` are not merged).
-``[[case]]``
-    One case per table: ``name``, ``database``, ``phase``, ``solute``, ``temperatures`` (required, unless in
-    the defaults), ``exclude``, ``fix``, ``balance``, ``pressure``, and ``kind`` (``"solvus"``, the default, or
-    ``"uptake"`` with the uptake keys of `solubility.sweeps.kinds`: ``activity``, ``partial_pressure``, ...).
-``[[product]]``
-    Many cases at once: the keys of a case, where ``name`` is a template, plus a ``[product.vary]`` table whose
-    every key holds a list of alternatives; one case is made for every combination (the first key varies
-    slowest). ``vary.fix`` is a table of element = list of u-fractions (each element varies on its own) or a
-    list of whole ``fix`` tables. The template refers to the varied values as ``{phase}``, ``{fix.CR}``,
-    ``{pressure}``, ... and to the combination number as ``{index}`` (from 1).
-
-Numbers in names are written as `number_label` writes them (``1000``, ``0.02``, ``1e5``, ``2.5e9``, ``1e-4``).
-A job expands to at most `MAX_CASES` cases (counted before anything is expanded). Values are checked by the
-validators of `solubility.calc.inputs` and `solubility.sweeps.kinds` (the rules of the Python API).
+A job file has optional ``[defaults]`` (any case key but ``name``; a given key replaces the default whole),
+``[[case]]`` tables (`Case`'s keys) and ``[[product]]`` tables: a case whose ``name`` is a template, plus a
+``[product.vary]`` table of lists; one case is made per combination (the first key varies slowest).
+``vary.fix`` is a table of element = list of u-fractions or a list of ``fix`` tables. The template names the
+varied values (``{phase}``, ``{fix.CR}``, ``{pressure}``, ...), written as `number_label` writes numbers, and
+``{index}`` (from 1). A job expands to at most `MAX_CASES` cases, counted before anything is expanded. Only the
+TOML types are checked here: the values are checked by `solubility.calc.inputs` (the validator of the API and
+the CLI) and `solubility.sweeps.kinds`, and their errors are given the case and the key.
 """
 
 from __future__ import annotations
@@ -48,86 +37,67 @@ MAX_CASES = 10_000
 CASE_KEYS = ("name", "database", "phase", "solute", "temperatures", "exclude", "fix", "balance", "pressure",
              *KIND_KEYS)
 REQUIRED = ("name", "database", "phase", "solute", "temperatures")
-_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_#]*$")
 _PLACEHOLDER = re.compile(r"\{([^{}]*)\}")
+_PHASE = ("a phase name (letters, digits, '_' and '#', such as 'BCC_A2')", re.compile(r"^[A-Za-z][A-Za-z0-9_#]*$"))
+_ELEMENT = ("an element symbol (one or two letters, such as 'C' or 'CR')", re.compile(r"^[A-Za-z]{1,2}$"))
+#: per key: the TOML types accepted, what the message calls it, and the spelling of a name
+_TYPES: dict[str, tuple[Any, str, Any]] = {
+    "name": (str, "a name", None), "database": (str, "a path or a bundled database name", None),
+    "phase": (str, *_PHASE), "solute": (str, *_ELEMENT),
+    "temperatures": ((str, list, tuple), "a 'START:STOP:STEP' string or a list of numbers", None),
+    "exclude": ((list, tuple), "a list of phase names", None), "balance": (str, *_ELEMENT),
+    "pressure": ((int, float), "a number", None),
+}
 
 
 def _kind(value: Any) -> str:
-    for types, name in ((bool, "a boolean"), ((int, float), "a number"), (str, "a string"), (Mapping, "a table"),
-                        ((list, tuple), "a list")):
-        if isinstance(value, types):
-            return name
-    return f"a {type(value).__name__}"
+    """What a TOML value is, in words."""
+    kinds = {bool: "a boolean", int: "a number", float: "a number", str: "a string", dict: "a table", list: "a list"}
+    return kinds.get(type(value), f"a {type(value).__name__}")
 
 
-def _text(value: Any, what: str) -> str:
-    if isinstance(value, os.PathLike):
-        value = os.fspath(value)
-    if not isinstance(value, str) or not value.strip() or any(ord(c) < 32 or ord(c) == 127 for c in value):
+def _check(key: str, value: Any) -> Any:
+    """One value of a case: its TOML type here, its value by `solubility.calc.inputs`; normalized."""
+    types, what, pattern = _TYPES[key]
+    if key == "balance" and value is None:
+        return None
+    value = os.fspath(value) if isinstance(value, os.PathLike) else value
+    value = value.tolist() if hasattr(value, "tolist") else value  # a numpy array of temperatures
+    text = value.strip() if isinstance(value, str) else ""
+    bad_text = types is str and (not text or any(ord(c) < 32 or ord(c) == 127 for c in text))
+    if isinstance(value, bool) or not isinstance(value, types) or bad_text:
         raise InputError(f"expected {what}, got {_kind(value)} ({value!r})")
-    return value.strip()
-
-
-def _symbol(value: Any, what: str, pattern: re.Pattern = _NAME) -> str:
-    text = _text(value, what)
-    if not pattern.match(text):
+    if key == "pressure":
+        return check_pressure(value)
+    if key == "exclude":
+        return tuple(sorted({_check("phase", p) for p in value}))
+    if key == "temperatures":
+        if not isinstance(value, str) and any(isinstance(t, bool) or not isinstance(t, int | float) for t in value):
+            raise InputError(f"expected a list of numbers in K, got {value!r}")
+        values = [round(float(t), 6) for t in parse_temperatures(value)]  # 1 uK: grids written differently agree
+        if any(b <= a for a, b in itertools.pairwise(values)):
+            raise InputError("temperatures must be strictly increasing")
+        return tuple(values)
+    if pattern is not None and not pattern.match(text):
         raise InputError(f"{value!r} is not {what}")
-    return text.upper()
-
-
-def _element(value: Any) -> str:
-    return _symbol(value, "an element symbol (one or two letters, such as 'C' or 'CR')", re.compile(r"^[A-Za-z]{1,2}$"))
-
-
-def _phase(value: Any) -> str:
-    return _symbol(value, "a phase name (letters, digits, '_' and '#', such as 'BCC_A2')")
-
-
-def _temperatures(value: Any) -> tuple[float, ...]:
-    if not isinstance(value, str | Sequence) and not hasattr(value, "tolist"):
-        raise InputError(f"expected a 'START:STOP:STEP' string or a list of numbers, got {_kind(value)}")
-    if not isinstance(value, str) and any(isinstance(t, bool) or not isinstance(t, int | float) for t in list(value)):
-        raise InputError(f"expected a list of numbers in K, got {value!r}")
-    values = [round(float(t), 6) for t in parse_temperatures(value)]  # 1 uK: grids written differently share points
-    if any(b <= a for a, b in itertools.pairwise(values)):
-        raise InputError("temperatures must be strictly increasing")
-    return tuple(values)
-
-
-def _exclude(value: Any) -> tuple[str, ...]:
-    if isinstance(value, str) or not isinstance(value, Sequence):
-        raise InputError(f"expected a list of phase names, got {_kind(value)} ({value!r})")
-    return tuple(sorted({_phase(p) for p in value}))
-
-
-def _pressure(value: Any) -> float:
-    if isinstance(value, bool) or not isinstance(value, int | float):
-        raise InputError(f"expected a number, got {_kind(value)} ({value!r})")
-    return check_pressure(value)
-
-
-_CHECKS = {"name": lambda v: _text(v, "a name"), "database": lambda v: _text(v, "a path or a bundled database name"),
-           "phase": _phase, "solute": _element, "temperatures": _temperatures, "exclude": _exclude,
-           "balance": lambda v: None if v is None else _element(v), "pressure": _pressure}
+    return text.upper() if pattern is not None else text
 
 
 def _fix(value: Any, where: str) -> tuple[tuple[str, float], ...]:
-    """A table {element: u} -> sorted pairs, each u checked on its own (naming ``fix.EL``), then the sum."""
-    items = value.items() if isinstance(value, Mapping) else value
+    """A table {element: u} -> sorted pairs, each u checked by `check_fix` on its own (``fix.EL``), then all."""
     try:
-        pairs = [(_element(el), u) for el, u in items]
+        pairs = list(value.items() if isinstance(value, Mapping) else value)
+        names = [_check("solute", el) for el, _ in pairs]
     except (TypeError, ValueError, InputError):
         raise JobError(f"{where}: key 'fix': expected a table of element = u-fraction, got {_kind(value)}") from None
-    for el, u in pairs:
-        if isinstance(u, bool) or not isinstance(u, int | float):
-            raise JobError(f"{where}: key 'fix.{el}': expected a number, got {_kind(u)} ({u!r})")
+    for el, (_, u) in zip(names, pairs, strict=True):
         try:
+            if isinstance(u, bool) or not isinstance(u, int | float):
+                raise InputError(f"expected a number, got {_kind(u)} ({u!r})")
             check_fix({el: u})
         except InputError as exc:
             raise JobError(f"{where}: key 'fix.{el}': {exc}") from None
     try:
-        if len({el for el, _ in pairs}) < len(pairs):
-            raise InputError("an element is given twice")
         return tuple(sorted(check_fix(dict(pairs)).items()))
     except InputError as exc:
         raise JobError(f"{where}: key 'fix': {exc}") from None
@@ -139,18 +109,11 @@ class Case:
 
     Parameters
     ----------
-    name, database
-        Unique name in the sweep (the ``case`` coordinate); TDB path (`read_job` makes paths relative to the job
-        file absolute) or bundled database name.
-    phase, solute, exclude
-        Host phase (``"BCC_A2"``), interstitial element (``"C"``), phases left out (stored sorted), upper-cased.
+    name, database, phase, solute, exclude, fix, balance, pressure
+        As in `solubility.solvus`; the unique ``name`` is the ``case`` coordinate. Names are upper-cased,
+        ``exclude`` stored sorted and ``fix`` as sorted ``(element, u)`` pairs; pressure in Pa (101325).
     temperatures
         K: ``"START:STOP:STEP"`` (STOP included) or numbers; stored strictly increasing, rounded to 1 uK.
-    fix
-        u-fractions of other host elements, each in (0, 1), summing to less than 1 (as in `solubility.solvus`);
-        stored as sorted ``(element, u)`` pairs.
-    balance, pressure
-        The host's balance element (None: found by the solvus); Pa, > 0 (default 101325).
     kind, activity, reference, partial_pressure, atmosphere, equilibrate_gas
         ``"solvus"`` (default) or ``"uptake"`` and its surroundings (`solubility.sweeps.kinds`).
 
@@ -179,9 +142,9 @@ class Case:
     def __post_init__(self) -> None:
         named = isinstance(self.name, str) and self.name.strip()
         where = f"case {self.name.strip()!r}" if named else "case"
-        for key, check in _CHECKS.items():
+        for key in _TYPES:
             try:
-                object.__setattr__(self, key, check(getattr(self, key)))
+                object.__setattr__(self, key, _check(key, getattr(self, key)))
             except InputError as exc:
                 raise JobError(f"{where}: key {key!r}: {exc}") from None
         object.__setattr__(self, "fix", _fix(self.fix, where))

@@ -1,15 +1,16 @@
-"""`sweep`: run many solvus cases (this process, a local process pool or dask.distributed), store, assemble.
+"""`sweep`: run many cases (in this process, a local process pool or dask.distributed), store, assemble.
 
-Local workers are a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where the platform has
-it (the server imports the solvus engine once; the calling process, which may run threads, is never forked)
-and "spawn" elsewhere. Cases are submitted grouped by compiled system (database, elements, phases), so that a
-worker mostly meets the system it has built already. On dask, a system's cases prefer one worker.
+The local pool is a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where there is one (the
+server imports the engine once; the caller, which may run threads, is never forked), else "spawn". Cases go
+grouped by compiled system (database, elements, phases), so that a worker mostly meets a system it has built;
+on dask, a system's cases prefer one worker.
 """
 
 from __future__ import annotations
 
 import asyncio
 import multiprocessing
+import os
 import re
 import signal
 import sys
@@ -23,7 +24,7 @@ from solubility.sweeps.assemble import assemble
 from solubility.sweeps.job import Case, check_unique_names
 from solubility.sweeps.store import Store
 
-__all__ = ["DEFAULT_CONNECT_TIMEOUT", "check_databases", "run_case", "sweep"]
+__all__ = ["DEFAULT_CONNECT_TIMEOUT", "Progress", "check_databases", "run_case", "sweep"]
 
 #: seconds to wait for a dask scheduler to answer before giving up
 DEFAULT_CONNECT_TIMEOUT = 10.0
@@ -38,13 +39,10 @@ def run_case(case: Case) -> tuple[str, Any]:
     from solubility import solvus, uptake
     from solubility.sweeps.kinds import uptake_arguments
 
+    engine, extra = (uptake, uptake_arguments(case)) if case.kind == "uptake" else (solvus, {})
     try:
-        if case.kind == "uptake":
-            return "", uptake(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
-                              fix=case.solvus_fix, balance=case.balance, pressure=case.pressure,
-                              **uptake_arguments(case))
-        return "", solvus(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
-                          fix=case.solvus_fix, balance=case.balance, pressure=case.pressure)
+        return "", engine(case.database, case.phase, case.solute, list(case.temperatures), exclude=case.exclude,
+                          fix=case.solvus_fix, balance=case.balance, pressure=case.pressure, **extra)
     except Exception as exc:  # a sweep records the failure of one case and goes on
         return one_line(exc), None
 
@@ -57,45 +55,39 @@ def one_line(exc: BaseException) -> str:
 def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = None, scheduler: Any = None,
           store=None, resume: bool = False, progress: bool | Callable | None = None, strict: bool = False,
           overwrite: bool = False, connect_timeout: float = DEFAULT_CONNECT_TIMEOUT):
-    """Compute the solvus of many cases and gather them in one Dataset along ``case``.
+    """Compute the solvus (or uptake) of many cases and gather them in one Dataset along ``case``.
 
     Parameters
     ----------
     cases
-        `Case` objects or mappings of the keys of a case (as `read_job` returns or a ``[[case]]`` table holds);
-        names unique. Everything is validated, and every database read, before any case runs.
-    workers
-        Local worker processes (default: one per CPU, at most one per case); 0 runs the cases in this process.
-    scheduler
-        Run on dask.distributed instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
-    store
-        Folder where every finished case is written at once (see `solubility.sweeps.store`); locked while the
-        sweep runs.
-    resume
-        Keep the finished cases of `store` (checked against their sha256) and run the others.
+        `Case` objects or mappings of a case's keys, names unique; all validated, every database read, first.
+    workers, scheduler
+        Local worker processes (default one per CPU, at most one per case; 0: this process), or a dask
+        scheduler instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
+    store, resume, overwrite
+        Folder where each finished case is written at once, locked while the sweep runs
+        (`solubility.sweeps.store`); keep its finished cases (checked) and run the others; start it afresh
+        when it holds another job, or this one when not resuming.
     progress
-        True: a tqdm bar on standard error. A callable ``f(done, total, case, status)``: called first with
-        ``(cases taken from the store, total, None, "start")``, then after every case. None/False: nothing.
+        True: a tqdm bar on standard error; a callable ``f(done, total, case, status)``, called first with
+        ``(cases taken from the store, total, None, "start")`` then after every case; None/False: nothing.
     strict
         Raise the error of the first failed case (named after the case) instead of recording it.
-    overwrite
-        Start the store afresh when it holds another job, or this one when not resuming.
     connect_timeout
         Seconds to wait for the dask scheduler to answer.
 
     Returns
     -------
     xarray.Dataset
-        See `solubility.sweeps.assemble`: dims ``case`` and ``T`` (the union of the cases' temperatures, K),
-        ``requested`` marking each case's own points, the solvus variables, and the inputs and per-case
-        results as coordinates along ``case``. The same whichever executor ran it, and whether resumed.
+        Dims ``case`` and ``T`` (K) as `solubility.sweeps.assemble` describes; the same whichever executor ran
+        it, and whether resumed.
 
     Raises
     ------
     JobError, InputError
         A case or option is invalid, or a database lacks what a case asks for (before any work).
     OutputError
-        The store cannot be used, is locked by a running sweep, is damaged (`DamagedStoreError`) or cannot be written.
+        The store cannot be used, is locked, is damaged (`DamagedStoreError`) or cannot be written.
     """
     case_list = _as_cases(cases)
     if scheduler is not None and workers is not None:
@@ -104,40 +96,44 @@ def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = No
         raise InputError("resume needs a store (the folder of the run to resume)")
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 0):
         raise InputError(f"workers must be a whole number >= 0 (0: run in this process), got {workers!r}")
+    if progress not in (None, False, True) and not callable(progress):
+        raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
     if isinstance(scheduler, str):
         check_address(scheduler)
     check_databases(case_list)
+    own = progress = Progress() if progress is True else progress
     st = Store.open(store, case_list, resume=resume, overwrite=overwrite) if store is not None else None
+    outcomes: Any = ()
     try:
         results = st.finished() if (st is not None and resume) else {}
-        errors_: dict[int, str] = {}
+        failed: dict[int, str] = {}
         todo = [(i, c) for i, c in enumerate(case_list) if i not in results]
-        report = _progress(progress, len(case_list), len(results))
-        outcomes: Any = ()
-        try:
-            if scheduler is not None:
-                outcomes = _dask(todo, scheduler, connect_timeout)
-            elif workers == 0:
-                outcomes = ((i, *run_case(c)) for i, c in todo)
+        if progress:
+            progress(len(results), len(case_list), None, "start")
+        if scheduler is not None:
+            outcomes = _dask(todo, scheduler, connect_timeout)
+        elif workers == 0:
+            outcomes = ((i, *run_case(c)) for i, c in todo)
+        else:
+            outcomes = _local(todo, min(workers or _cpus(), len(todo)))
+        for index, error, ds in outcomes:
+            if error and strict:
+                raise _case_error(case_list[index], error)
+            if error:
+                failed[index] = error
             else:
-                outcomes = _local(todo, min(workers or _cpus(), len(todo)))
-            for index, error, ds in outcomes:
-                if error:
-                    errors_[index] = error
-                    if strict:
-                        raise _case_error(case_list[index], error)
-                else:
-                    if st is not None:
-                        st.write(index, ds)
-                    results[index] = ds
-                report(case_list[index], "failed" if error else "ok")
-        finally:
-            getattr(report, "close", lambda: None)()
-            getattr(outcomes, "close", lambda: None)()  # a generator's finally: stop workers, cancel tasks
+                if st is not None:
+                    st.write(index, ds)
+                results[index] = ds
+            if progress:
+                progress(len(results) + len(failed), len(case_list), case_list[index], "failed" if error else "ok")
     finally:
+        getattr(outcomes, "close", lambda: None)()  # a generator's finally: stop workers, cancel tasks
+        if isinstance(own, Progress):
+            own.close()
         if st is not None:
             st.close()
-    return assemble(case_list, results, errors_)
+    return assemble(case_list, results, failed)
 
 
 def _as_cases(cases) -> list[Case]:
@@ -190,35 +186,34 @@ def _case_error(case: Case, message: str) -> SolubilityError:
     return SolubilityError(f"case {case.name!r} failed: {message}")
 
 
-def _progress(progress, total: int, done: int) -> Callable:
-    if progress is None or progress is False:
-        return lambda case, status: None
-    if progress is True:
-        from tqdm import tqdm
+class Progress:
+    """A `sweep` progress callable: a tqdm bar on standard error (`bar` False: counting only).
 
-        bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
+    ``done`` counts the finished cases (those taken from the store too), ``ran`` the cases run by this sweep.
+    """
 
-        def update(case, status):
-            bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
-            bar.update(1)
+    def __init__(self, bar: bool = True) -> None:
+        self.bar: Any = bar
+        self.done = self.ran = 0
 
-        update.close = bar.close
-        return update
-    if not callable(progress):
-        raise InputError(f"progress must be True, False, None or a callable, got {type(progress).__name__}")
-    count = [done]
-    progress(done, total, None, "start")
+    def __call__(self, done: int, total: int, case: Case | None, status: str) -> None:
+        self.done, self.ran = done, self.ran + (case is not None)
+        if case is None and self.bar is True:
+            from tqdm import tqdm
 
-    def call(case, status):
-        count[0] += 1
-        progress(count[0], total, case, status)
+            self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
+        elif case is not None and not isinstance(self.bar, bool):
+            self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
+            self.bar.update(1)
 
-    return call
+    def close(self) -> None:
+        """Close the bar."""
+        if not isinstance(self.bar, bool):
+            self.bar.close()
+        self.bar = False
 
 
 def _cpus() -> int:
-    import os
-
     return len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count() or 1
 
 
@@ -232,24 +227,28 @@ def _by_system(items: list[tuple[int, Case]]) -> list[tuple[int, Case]]:
     return sorted(items, key=lambda item: first.setdefault(item[1].system_key, len(first)))
 
 
+def _outcomes(futures: dict, completed: Iterable, died: str = "") -> Iterator[tuple[int, str, Any]]:
+    """``(index, error, Dataset)`` of each future as it completes; a lost task (its worker died) is an error."""
+    for future in completed:
+        try:
+            error, ds = future.result()
+        except Exception as exc:
+            error, ds = f"{died}{one_line(exc)}", None
+        yield futures[future], error, ds
+
+
 def _local(items: list[tuple[int, Case]], workers: int) -> Iterator[tuple[int, str, Any]]:
     if not items:
         return
-    method = "forkserver" if sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods() \
-        else "spawn"
-    ctx = multiprocessing.get_context(method)
-    if method == "forkserver":
+    forkserver = sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods()
+    ctx = multiprocessing.get_context("forkserver" if forkserver else "spawn")
+    if forkserver:
         ctx.set_forkserver_preload(list(PRELOAD))
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_ignore_sigint)
     finished = False
     try:
         futures = {pool.submit(run_case, case): index for index, case in _by_system(items)}
-        for future in as_completed(futures):
-            try:
-                error, ds = future.result()
-            except Exception as exc:  # a worker died (killed, out of memory): BrokenProcessPool
-                error, ds = f"WorkerDied: {one_line(exc)}", None
-            yield futures[future], error, ds
+        yield from _outcomes(futures, as_completed(futures), "WorkerDied: ")  # BrokenProcessPool: a worker died
         finished = True
     finally:
         if not finished:  # interrupted: stop the workers now rather than after their current case
@@ -317,12 +316,7 @@ def _dask(items: list[tuple[int, Case]], scheduler: Any, timeout: float) -> Iter
             where = home.setdefault(case.system_key, workers[len(home) % len(workers)])
             restrict = {"workers": [where], "allow_other_workers": True} if where else {}
             futures[client.submit(run_case, case, pure=False, **restrict)] = index
-        for future in distributed.as_completed(list(futures), loop=client.loop):
-            try:
-                error, ds = future.result()
-            except Exception as exc:  # the cluster lost the task (a worker died, ...)
-                error, ds = one_line(exc), None
-            yield futures[future], error, ds
+        yield from _outcomes(futures, distributed.as_completed(list(futures), loop=client.loop))
     finally:
         client.cancel(list(futures))
         if own:

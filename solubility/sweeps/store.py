@@ -1,17 +1,11 @@
-"""The sweep store: a folder where every finished case is written as soon as it completes, and read back on resume.
+"""The sweep store: a folder where every finished case is written as soon as it completes, read back on resume.
 
-Layout::
-
-    DIR/manifest.json    the job: format, job sha256, every case's name and input sha256 (written once, first)
-    DIR/finished.jsonl   one JSON line per finished case: index, name, file and the sha256 of that file
-    DIR/case-00000.nc    the solvus Dataset of a finished case (NetCDF-4), named by its index in the job
-    DIR/lock             the process id of the sweep using the store (removed at its end)
-
-The checksums sit in a journal beside the manifest rather than in it, so that recording a case costs one
-appended line, not a rewrite of every case's entry. A case file is serialized in memory and then written
-atomically (temporary file, fsync, rename), so a full disk is a clean error and a kill leaves no half file.
-A case that failed is not stored; it runs again on resume. On resume every file listed in the journal must
-have its recorded sha256 and the case's temperatures, else the store is refused as damaged (`DamagedStoreError`).
+``manifest.json`` holds the job (format, job sha256, every case's name and input sha256; written once, first),
+``finished.jsonl`` a line per finished case (index, name, file, the file's sha256: one append, not a rewrite),
+``case-00000.nc`` the Dataset of finished case 0 (NetCDF-4, serialized in memory and written atomically, so a
+full disk is a clean error and a kill leaves no half file) and ``lock`` the process using the store. A failed
+case is not stored: it runs again on resume. On resume every file listed in the journal must have its recorded
+sha256 and the case's temperatures, else the store is refused as damaged (`DamagedStoreError`).
 """
 
 from __future__ import annotations
@@ -33,8 +27,7 @@ from solubility.sweeps.job import Case, job_sha256
 
 __all__ = ["DamagedStoreError", "Store", "canonical"]
 
-FORMAT = "solubility sweep store"
-FORMAT_VERSION = 2
+FORMAT, FORMAT_VERSION = "solubility sweep store", 2
 MANIFEST, JOURNAL, LOCK = "manifest.json", "finished.jsonl", "lock"
 #: the largest manifest or journal read back (a case needs about 200 bytes in each)
 MAX_TEXT = 64 * 2**20
@@ -58,21 +51,18 @@ def canonical(ds):
     return ds
 
 
-def _read_json(path: Path, what: str, store: Path) -> Any:
-    try:
-        if path.stat().st_size > MAX_TEXT:
-            raise DamagedStoreError(store, f"{what} is larger than {MAX_TEXT} bytes")
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError, RecursionError):
-        raise DamagedStoreError(store, f"{what} cannot be read") from None
+def _read_text(store: Path, name: str) -> str:
+    """The text of the manifest or the journal; larger than `MAX_TEXT` bytes, the store is damaged."""
+    if (store / name).stat().st_size > MAX_TEXT:
+        raise DamagedStoreError(store, f"{name} is larger than {MAX_TEXT} bytes")
+    return (store / name).read_text(encoding="utf-8", errors="replace")
 
 
 class Store:
     """The open, locked store of one job (`Store.open`); `close` releases the lock."""
 
     def __init__(self, path: Path, cases: list[Case]) -> None:
-        self.path, self.cases, self.job = path, cases, job_sha256(cases)
-        self.locked = False
+        self.path, self.cases, self.job, self.locked = path, cases, job_sha256(cases), False
 
     @classmethod
     def open(cls, path: str | os.PathLike, cases: list[Case], *, resume: bool, overwrite: bool) -> Store:
@@ -92,7 +82,7 @@ class Store:
             p.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             raise OutputError(f"store folder {str(p)!r} cannot be created: {exc.strerror or exc}") from None
-        others = [e for e in os.listdir(p) if not _OURS.match(e)]
+        others = [e.name for e in p.iterdir() if not _OURS.match(e.name)]
         if others:
             raise OutputError(f"store folder {str(p)!r} holds other files ({others[0]!r}, ...); give a new folder")
         store._lock()
@@ -127,10 +117,9 @@ class Store:
 
     def close(self) -> None:
         """Release the lock and remove temporary files left by an interrupted write."""
-        for entry in os.listdir(self.path) if self.path.is_dir() else []:
-            if entry.startswith(".") and entry.endswith(".part"):
-                with contextlib.suppress(OSError):
-                    (self.path / entry).unlink()
+        for part in self.path.glob(".*.part"):
+            with contextlib.suppress(OSError):
+                part.unlink()
         if self.locked:
             with contextlib.suppress(OSError):
                 (self.path / LOCK).unlink()
@@ -138,7 +127,10 @@ class Store:
 
     def _prepare(self, resume: bool, overwrite: bool) -> None:
         p = self.path
-        manifest = _read_json(p / MANIFEST, MANIFEST, p) if (p / MANIFEST).exists() else None
+        try:
+            manifest = json.loads(_read_text(p, MANIFEST)) if (p / MANIFEST).exists() else None
+        except (OSError, ValueError, RecursionError):
+            raise DamagedStoreError(p, f"{MANIFEST} cannot be read") from None
         if manifest is not None:
             if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
                 if resume or not overwrite:
@@ -152,9 +144,9 @@ class Store:
             elif not overwrite and (p / JOURNAL).exists():
                 raise OutputError(f"store {str(p)!r} already holds cases of this job; pass resume to continue, "
                                   "or overwrite")
-        for entry in os.listdir(p):  # start afresh: only the store's own files are removed
-            if _OURS.match(entry) and entry != LOCK:
-                (p / entry).unlink()
+        for entry in p.iterdir():  # start afresh: only the store's own files are removed
+            if _OURS.match(entry.name) and entry.name != LOCK:
+                entry.unlink()
         from solubility import __version__
 
         atomic_write_text(p / MANIFEST, json.dumps({
@@ -194,15 +186,12 @@ class Store:
         """
         import xarray as xr
 
-        journal = self.path / JOURNAL
-        if not journal.exists():
+        if not (self.path / JOURNAL).exists():
             return {}
-        if journal.stat().st_size > MAX_TEXT:
-            raise DamagedStoreError(self.path, f"{JOURNAL} is larger than {MAX_TEXT} bytes")
-        lines = journal.read_text(encoding="utf-8", errors="replace").split("\n")
+        lines = _read_text(self.path, JOURNAL).split("\n")[:-1]  # what follows the last newline: an append cut short
         done: dict[int, Any] = {}
         for number, text in enumerate(lines, start=1):
-            if not text.strip() or (number == len(lines)):  # the last piece has no newline: an append cut short
+            if not text.strip():
                 continue
             try:
                 entry = json.loads(text)

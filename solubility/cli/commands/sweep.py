@@ -17,9 +17,7 @@ from __future__ import annotations
 
 import argparse
 import os
-import signal
 import sys
-import threading
 import time
 
 
@@ -95,7 +93,7 @@ def run(args: argparse.Namespace) -> int:
     from solubility.cli.commands._common import emit_json
     from solubility.errors import InputError, Terminated
     from solubility.sweeps import read_job, sweep, sweep_json
-    from solubility.sweeps.run import check_address
+    from solubility.sweeps.run import Progress, check_address
 
     if args.resume and not args.store:
         raise InputError("--resume needs --store DIR (the folder of the run to resume)")
@@ -110,10 +108,8 @@ def run(args: argparse.Namespace) -> int:
     if args.scheduler is not None:
         check_address(args.scheduler)
     started = time.perf_counter()
-    counter = _Counter(show_bar=not args.quiet and sys.stderr.isatty())
-    main_thread = threading.current_thread() is threading.main_thread()
-    previous = signal.signal(signal.SIGTERM, _terminated) if main_thread else None
-    try:
+    counter = Progress(bar=not args.quiet and sys.stderr.isatty())
+    try:  # SIGTERM raises Terminated, a KeyboardInterrupt (`solubility.cli.main` sets the handler)
         ds = sweep(cases, workers=args.workers, scheduler=args.scheduler, store=args.store, resume=args.resume,
                    progress=counter, strict=args.strict, overwrite=args.overwrite,
                    connect_timeout=args.connect_timeout)
@@ -124,13 +120,11 @@ def run(args: argparse.Namespace) -> int:
     except KeyboardInterrupt as exc:
         counter.close()
         kept = f"; {counter.done} finished cases are in the store, rerun with --resume" if args.store else ""
-        term = isinstance(exc, _Terminated | Terminated)
+        term = isinstance(exc, Terminated)
         print(f"error: sweep stopped by {'SIGTERM' if term else 'Ctrl-C'}: workers stopped, temporary files "
               f"removed, no output file written{kept}", file=sys.stderr)
         return 143 if term else 130
     finally:
-        if main_thread:
-            signal.signal(signal.SIGTERM, previous)
         counter.close()
     if args.json:
         emit_json(sweep_json(ds))
@@ -150,14 +144,6 @@ def _csv(ds) -> bytes:
     from solubility.sweeps import csv_text
 
     return csv_text(ds).encode("utf-8")
-
-
-class _Terminated(KeyboardInterrupt):
-    """SIGTERM, raised in the main thread so that every `finally` runs (workers stopped, store unlocked)."""
-
-
-def _terminated(signum, frame) -> None:
-    raise _Terminated
 
 
 def _check_outputs_are_not_inputs(args: argparse.Namespace, outputs: list, cases) -> None:
@@ -180,31 +166,3 @@ def _check_outputs_are_not_inputs(args: argparse.Namespace, outputs: list, cases
         for real, what in [*inputs.items(), *((r, o) for r, o in seen.items())]:
             if real == store or real.startswith(store + os.sep):
                 raise InputError(f"--store {args.store!r} holds {what}; give a folder of its own")
-
-
-class _Counter:
-    """Progress callback: counts the cases run here and drives a tqdm bar on a terminal."""
-
-    def __init__(self, *, show_bar: bool) -> None:
-        self.ran = 0
-        self.done = 0
-        self.bar = None
-        self.show_bar = show_bar
-
-    def __call__(self, done: int, total: int, case, status: str) -> None:
-        self.done = done
-        if case is None:  # the start: `done` cases come from the store
-            if self.show_bar:
-                from tqdm import tqdm
-
-                self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, desc="sweep")
-            return
-        self.ran += 1
-        if self.bar is not None:
-            self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
-            self.bar.update(1)
-
-    def close(self) -> None:
-        if self.bar is not None:
-            self.bar.close()
-            self.bar = None
