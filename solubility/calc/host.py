@@ -270,7 +270,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
     hints = hints or {}
     screened = system.screen(mu, T, phases)
     _check_finite(screened.items(), T)
-    if quick and max(v for v, *_ in screened.values()) > 0:
+    if quick and max((v for v, *_ in screened.values()), default=-math.inf) > 0:
         return {phase: DrivingForce(phase, *best, True) for phase, best in screened.items()}
     out = {}
     # ordered phases whose disordered phase is refined too come last: in the disordered state their optimum is

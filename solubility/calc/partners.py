@@ -116,6 +116,8 @@ class PartnerView:
         """Best sampled driving force (J per mole of atoms), its constitution and its mole fractions (read-only),
         each entry distinct from the host."""
         labels = tuple(phases)
+        if not labels:
+            return {}
         df, starts = self.system.sampled_driving_forces(mu, T, [self._under[p] for p in labels])
         df[~np.isfinite(df)] = -np.inf
         ends = np.append(starts[1:], df.size)

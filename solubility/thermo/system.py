@@ -349,6 +349,8 @@ class BoundSystem:
         A phase with any sample whose energy is not a finite number gets NaN (its driving force is unknown; the
         caller must not take it as stable or as unstable).
         """
+        if not phases:
+            return {}
         df, starts = self.sampled_driving_forces(mu, T, phases)
         values, best = best_of_runs(df, starts)
         return {name: (float(v), self.phases[name].samples[k].copy(), self.phases[name].sample_x[k])
