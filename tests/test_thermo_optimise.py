@@ -179,3 +179,4 @@ def test_simplex_points_reach_the_dilute_corners():
     for k in range(3):  # each constituent is sampled from 1e-12 up to practically 1
         assert pts[:, k].min() <= 1e-12 and pts[:, k].max() > 1 - 1e-11
     np.testing.assert_array_equal(simplex_points(1), np.ones((1, 1)))
+

@@ -152,9 +152,10 @@ class _Engine:
                                  phase_y, max_other)
         return BoundaryPoint(T, s, partners, mu, "ok", "", phase_y, max_other)
 
-    def max_df(self, s: float, T: float, quick: bool = False) -> tuple[float, str, dict]:
+    def max_df(self, s: float, T: float, quick: bool = False,
+               hints: Mapping[str, np.ndarray] | None = None) -> tuple[float, str, dict]:
         """F(s): the largest driving force of another phase against the host at ln(y) = s (see `all_df`)."""
-        dfs = self.all_df(self.mu(s, T), T, quick=quick)
+        dfs = self.all_df(self.mu(s, T), T, hints, quick=quick)
         phase = max(dfs, key=lambda p: dfs[p].value)
         return dfs[phase].value, phase, dfs
 
@@ -168,7 +169,9 @@ class _Engine:
         grid = [float(g) for g in _SCAN]
         scans = []
         for s in grid:  # up to the end of the first stable run (all of it when nothing is stable)
-            scans.append(self.max_df(s, T, quick=True))
+            # each point starts the phases' optimisations from their optima at the point before
+            scans.append(self.max_df(s, T, quick=True, hints={p: d.y for p, d in scans[-1][2].items()}
+                                     if scans else None))
             if scans[-1][0] >= 0 and any(f < 0 for f, _, _ in scans[:-1]):
                 break
         grid = grid[:len(scans)]

@@ -267,27 +267,33 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
     FloatingPointError
         A phase's Gibbs energy is not a finite number at some sample or at its optimum.
     """
-    def sampled(phase: str, value: float, y: np.ndarray) -> DrivingForce:
-        n = system.phases[phase].moles @ y
-        return DrivingForce(phase, value, y, n / n.sum(), True)
-
     hints = hints or {}
     screened = system.screen(mu, T, phases)
     _check_finite(screened.items(), T)
-    if quick and max(v for v, _ in screened.values()) > 0:
-        return {phase: sampled(phase, value, y) for phase, (value, y) in screened.items()}
+    if quick and max((v for v, *_ in screened.values()), default=-math.inf) > 0:
+        return {phase: DrivingForce(phase, *best, True) for phase, best in screened.items()}
     out = {}
-    for phase, (value, y_best) in screened.items():
+    # ordered phases whose disordered phase is refined too come last: in the disordered state their optimum is
+    # their disordered phase's (`solubility.calc.partners.PartnerView.as_disordered`), not optimised again
+    twins = system.duplicates(phases) if hasattr(system, "duplicates") else {}
+    for phase in sorted(screened, key=lambda p: p in twins):
+        value, y_best, x_best = screened[phase]
         if value < -margins[phase]:
-            out[phase] = sampled(phase, value, y_best)
+            out[phase] = DrivingForce(phase, value, y_best, x_best, True)
             continue
         hint = hints.get(phase)
+        parent = out.get(twins.get(phase, ""))
+        if parent is not None:
+            same = system.as_disordered(phase, parent, mu, T, y_best, hint)
+            if same is not None and abs(same.value - parent.value) <= DF_TOL and same.value >= value - DF_TOL:
+                out[phase] = same
+                continue
         best = system.driving_force(phase, mu, T, hint if hint is not None else y_best)
         if hint is not None and value > best.value + DF_TOL:
             alt = system.driving_force(phase, mu, T, y_best)
             if alt.value > best.value:
                 best = alt
-        _check_finite([(phase, (best.value, best.y))], T)
+        _check_finite([(phase, (best.value,))], T)
         margins[phase] = max(margins[phase], 20.0 * (best.value - value))
         out[phase] = best
     return out
@@ -296,7 +302,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
 def _check_finite(items, T: float) -> None:
     """Raise FloatingPointError naming the first phase whose driving force is not a finite number (a NaN or
     infinite Gibbs energy: a database fault such as LN of a negative number), so the point fails, never passes."""
-    for phase, (value, _) in items:
+    for phase, (value, *_) in items:
         if not math.isfinite(value):
             raise FloatingPointError(f"the Gibbs energy of {phase} is not a finite number at T = {T:g} K")
 

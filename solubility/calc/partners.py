@@ -22,6 +22,7 @@ from dataclasses import replace
 import numpy as np
 
 from solubility.thermo.phases import DrivingForce
+from solubility.thermo.system import best_of_runs
 
 __all__ = ["SAME_RADIUS", "SCREEN_RADIUS", "PartnerView", "partner_names", "relabel", "second_set"]
 
@@ -69,6 +70,8 @@ class PartnerView:
         self.related = {self.twin, *family}
         self.disordered = dict(disordered)
         self._spread_idx = {p: _spread_index(system.phases[p], ordering[p]) for p in ordering if p in system.phases}
+        self._ordering = {p: tuple(int(k) for k in ordering[p]) for p in ordering if p in system.phases}
+        self._maps: dict[tuple[str, str], np.ndarray | None] = {}
         self.host_x: np.ndarray | None = None
 
     def rebound(self, system) -> PartnerView:
@@ -108,30 +111,78 @@ class PartnerView:
         return near & (self.spread(phase, y) < radius)
 
     # ---------------------------------------------------------------- the engine's interface
-    def screen(self, mu: np.ndarray, T: float, phases: Sequence[str]) -> dict[str, tuple[float, np.ndarray]]:
-        """Best sampled driving force (J per mole of atoms) and its constitution, each entry distinct from the
-        host."""
-        out = {}
-        for label in phases:
-            name = self._under[label]
-            pf = self.system.phases[name]
-            gm = self.system.gibbs_per_atom_samples(name, T)
-            df = pf.sample_x @ mu - gm
-            df[~np.isfinite(df)] = -np.inf
-            df[self._is_host(label, pf.samples, pf.sample_x, SCREEN_RADIUS)] = -np.inf
-            k = int(np.argmax(df))
-            out[label] = (float(df[k]), pf.samples[k].copy())
-        return out
+    def screen(self, mu: np.ndarray, T: float,
+               phases: Sequence[str]) -> dict[str, tuple[float, np.ndarray, np.ndarray]]:
+        """Best sampled driving force (J per mole of atoms), its constitution and its mole fractions (read-only),
+        each entry distinct from the host."""
+        labels = tuple(phases)
+        if not labels:
+            return {}
+        df, starts = self.system.sampled_driving_forces(mu, T, [self._under[p] for p in labels])
+        df[~np.isfinite(df)] = -np.inf
+        ends = np.append(starts[1:], df.size)
+        for i, label in enumerate(labels):
+            if label in self.related and self.host_x is not None:
+                pf = self.phases[label]
+                run = df[starts[i]:ends[i]]
+                run[self._is_host(label, pf.samples, pf.sample_x, SCREEN_RADIUS)] = -np.inf
+        values, best = best_of_runs(df, starts)
+        return {label: (float(v), self.phases[label].samples[k].copy(), self.phases[label].sample_x[k])
+                for label, v, k in zip(labels, values, best - starts, strict=True)}
 
     def driving_force(self, phase: str, mu: np.ndarray, T: float, y0: np.ndarray) -> DrivingForce:
         """Driving force of entry `phase` against `mu`, its constitution optimised from `y0`; an optimum that is
         the host itself is replaced by the best distinct sample."""
         res = self.system.driving_force(self._under[phase], mu, T, y0)
         if self._is_host(phase, res.y, res.x, SAME_RADIUS)[0]:
-            value, y = self.screen(mu, T, [phase])[phase]
-            n = self.phases[phase].moles @ y
-            return DrivingForce(phase, value, y, n / n.sum(), True)
+            value, y, x = self.screen(mu, T, [phase])[phase]
+            return DrivingForce(phase, value, y, x, True)
         return DrivingForce(phase, res.value, res.y, res.x, res.converged)
+
+    # ---------------------------------------------------------------- ordered phases in their disordered state
+    def duplicates(self, phases: Sequence[str]) -> dict[str, str]:
+        """Ordered entries among `phases` whose disordered phase is also among them (the host's own phase as its
+        second set): ordered label -> the disordered entry's label."""
+        out = {}
+        for label in phases:
+            dis = self.disordered.get(self._under[label])
+            parent = self.twin if dis == self.host else dis
+            if parent is not None and parent in phases and parent != label:
+                out[label] = parent
+        return out
+
+    def as_disordered(self, phase: str, parent: DrivingForce, mu: np.ndarray, T: float, y_best: np.ndarray,
+                      hint: np.ndarray | None) -> DrivingForce | None:
+        """The optimum of ordered entry `phase` from its disordered phase's optimum `parent`, or None.
+
+        Where the best sample of an ordered phase and its hint (if any) are both disordered, its optimisation
+        starts in the disordered state and stays there: by the symmetry of the ordering sublattices the gradient
+        in every ordering direction is zero in that state, so the optimum is the disordered phase's, taken at
+        the same site fractions on every ordering sublattice. Returns None where that does not apply (the
+        caller optimises the phase itself); the caller checks that the value equals the parent's.
+        """
+        if self.spread(phase, y_best)[0] > 1e-12 or (hint is not None and self.spread(phase, hint)[0] > 1e-12):
+            return None
+        y = self._from_disordered(phase, parent.phase, parent.y)
+        if y is None:
+            return None
+        n = self.phases[phase].moles @ y
+        atoms = float(n.sum())
+        value = (float(mu @ n) - self.gibbs(phase, y, T)) / atoms
+        return DrivingForce(phase, value, y, n / atoms, parent.converged and bool(np.isfinite(value)))
+
+    def _from_disordered(self, phase: str, parent: str, y_dis: np.ndarray) -> np.ndarray | None:
+        """Site fractions of ordered entry `phase` in the disordered state given by the disordered entry's `y_dis`
+        (every ordering sublattice takes the disordered phase's first sublattice, the others its following ones
+        in order), or None where the sublattices do not correspond."""
+        key = (phase, parent)
+        if key not in self._maps:
+            self._maps[key] = _variable_map(self.phases[phase], self.phases[parent],
+                                            self._ordering.get(self._under[phase], ()))
+        idx = self._maps[key]
+        if idx is None:
+            return None
+        return np.concatenate((y_dis, [0.0]))[idx]
 
     def label(self, phase: str, y: np.ndarray | None) -> str:
         """The name a partner is reported under (an ordered phase in its disordered state by its disordered
@@ -153,6 +204,22 @@ def _spread_index(pf, ordering: Sequence[int]) -> np.ndarray:
         k = int(pf.sublattice_of[j])
         if k in subs:
             idx[names.index(pf.species[j]), subs.index(k)] = j
+    return idx
+
+
+def _variable_map(ordered, disordered, ordering: Sequence[int]) -> np.ndarray | None:
+    """For each site-fraction variable of `ordered`, the index of the disordered phase's variable that gives its
+    value in the disordered state (``disordered.ny`` for a constituent the disordered phase lacks: zero), or None
+    where the sublattices do not correspond."""
+    subs = [int(k) for k in ordering]
+    rest = [k for k in range(ordered.n_sublattices) if k not in subs]
+    if not subs or disordered.n_sublattices != 1 + len(rest):
+        return None
+    where = {(int(disordered.sublattice_of[j]), disordered.species[j]): j for j in range(disordered.ny)}
+    idx = np.full(ordered.ny, disordered.ny, dtype=int)
+    for j in range(ordered.ny):
+        k = int(ordered.sublattice_of[j])
+        idx[j] = where.get((0 if k in subs else 1 + rest.index(k), ordered.species[j]), disordered.ny)
     return idx
 
 

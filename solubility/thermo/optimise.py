@@ -207,10 +207,13 @@ def maximise_phi(
             and float(np.max(np.abs(step) / np.maximum(y, Y_FLOOR))) < 1e-6  # in the quadratic regime
         ):
             return normalise(np.maximum(y + step, Y_FLOOR), sublattice_of, ns), True
+        # phi is a small difference of large terms (mu . N and G, each of order 1e5 J/mol): its rounding error is
+        # about 1e-16 of those, not of phi, and a line search that asks more backtracks on noise
+        noise = 1e-13 * max(1.0, abs(phi), abs(g) / n)
         for _ls in range(40):
             y_new = normalise(np.maximum(y + alpha * step, Y_FLOOR), sublattice_of, ns)
             phi_new = phi_of(y_new)
-            if phi_new >= phi - 1e-13 * max(1.0, abs(phi)):
+            if phi_new >= phi - noise:
                 break
             alpha *= 0.5
         else:  # no ascent possible at double precision: converged only if the gradient is tiny

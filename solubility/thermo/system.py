@@ -44,6 +44,7 @@ __all__ = [
     "CompiledSystem",
     "DrivingForce",
     "PhaseFunctions",
+    "best_of_runs",
     "cache_info",
     "clear_cache",
     "compiled_system",
@@ -211,6 +212,10 @@ class BoundSystem:
         self.molar_masses = compiled.molar_masses
         self.phases = compiled.phases
         self._records = compiled._records_with(self._values)
+        #: (T, {phase: Gibbs energies of its samples}): the samples' energies at the last temperature asked for,
+        #: shared by every screening at that temperature (a line of points screens many times at each T)
+        self._sampled: tuple[float, dict] = (float("nan"), {})
+        self._stacks: dict[tuple[str, ...], tuple[np.ndarray, np.ndarray]] = {}
 
     def _dof(self, y: np.ndarray, T: float) -> np.ndarray:
         return np.concatenate(([1.0, self.pressure, float(T)], y))
@@ -236,7 +241,51 @@ class BoundSystem:
         return float(out[0]), grad[3:], hess[3:, 3:]
 
     def gibbs_per_atom_samples(self, phase: str, T: float) -> np.ndarray:
-        """Molar Gibbs energy (J per mole of atoms) of every sample constitution of `phase` at `T`."""
+        """Molar Gibbs energy (J per mole of atoms) of every sample constitution of `phase` at `T` (read-only;
+        kept for the last temperature asked for)."""
+        T = float(T)
+        cached_T, cache = self._sampled  # one read: another thread may swap the tuple, never mutate ours
+        if cached_T != T:
+            cache = {}
+            self._sampled = (T, cache)
+        out = cache.get(phase)
+        if out is None:
+            out = self._sample_energies(phase, T)
+            out.setflags(write=False)
+            cache[phase] = out
+        return out
+
+    def sampled_driving_forces(self, mu: np.ndarray, T: float, phases: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
+        """Driving forces (J per mole of atoms) of every sample of `phases` against `mu` at T, in one array.
+
+        Returns
+        -------
+        df, starts
+            The samples' driving forces, phase after phase in the order given, and where each phase's run begins
+            (``starts[i]:starts[i + 1]``, the last running to the end).
+        """
+        key = tuple(phases)
+        T = float(T)
+        cached_T, cache = self._sampled
+        stacked = cache.get(key) if cached_T == T else None
+        if stacked is None:
+            stacked = (np.concatenate([self.gibbs_per_atom_samples(p, T) for p in key]), self._stack(key))
+            cache = self._sampled[1]
+            cache[key] = stacked
+        energies, (x, starts) = stacked
+        return x @ mu - energies, starts
+
+    def _stack(self, key: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """(mole fractions of every sample of the phases `key`, stacked; where each phase's run begins)."""
+        stack = self._stacks.get(key)
+        if stack is None:
+            sizes = [self.phases[p].sample_x.shape[0] for p in key]
+            stack = (np.concatenate([self.phases[p].sample_x for p in key]),
+                     np.concatenate(([0], np.cumsum(sizes)[:-1])).astype(int))
+            self._stacks[key] = stack
+        return stack
+
+    def _sample_energies(self, phase: str, T: float) -> np.ndarray:
         pf = self.phases[phase]
         n = pf.samples.shape[0]
         dof = np.empty((n, 3 + pf.ny))
@@ -292,23 +341,20 @@ class BoundSystem:
         return sol[:n_el], residual
 
     # ------------------------------------------------------------------ driving forces
-    def screen(self, mu: np.ndarray, T: float, phases: Sequence[str]) -> dict[str, tuple[float, np.ndarray]]:
-        """Best sampled driving force (J per mole of atoms) and its constitution, for each phase.
+    def screen(self, mu: np.ndarray, T: float,
+               phases: Sequence[str]) -> dict[str, tuple[float, np.ndarray, np.ndarray]]:
+        """Best sampled driving force (J per mole of atoms), its constitution and its mole fractions (read-only),
+        for each phase.
 
         A phase with any sample whose energy is not a finite number gets NaN (its driving force is unknown; the
         caller must not take it as stable or as unstable).
         """
-        result = {}
-        for name in phases:
-            pf = self.phases[name]
-            gm = self.gibbs_per_atom_samples(name, T)
-            df = pf.sample_x @ mu - gm
-            if not np.all(np.isfinite(df)):
-                result[name] = (float("nan"), pf.samples[0].copy())
-                continue
-            k = int(np.argmax(df))
-            result[name] = (float(df[k]), pf.samples[k].copy())
-        return result
+        if not phases:
+            return {}
+        df, starts = self.sampled_driving_forces(mu, T, phases)
+        values, best = best_of_runs(df, starts)
+        return {name: (float(v), self.phases[name].samples[k].copy(), self.phases[name].sample_x[k])
+                for name, v, k in zip(phases, values, best - starts, strict=True)}
 
     def driving_force(self, phase: str, mu: np.ndarray, T: float, y0: np.ndarray) -> DrivingForce:
         """Driving force of `phase` against `mu`, optimising its constitution from the start `y0`.
@@ -332,6 +378,17 @@ class BoundSystem:
         atoms = float(n.sum())
         value = (float(mu @ n) - g) / atoms
         return DrivingForce(phase, value, y, n / atoms, converged and bool(np.isfinite(value)))
+
+
+def best_of_runs(values: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Largest value of each run of `values` (runs begin at `starts`) and its index (the first one); a run holding
+    a NaN gives NaN and the index of its first element."""
+    top = np.maximum.reduceat(values, starts)
+    hit = np.flatnonzero(values == np.repeat(top, np.diff(np.append(starts, values.size))))
+    first = hit[np.minimum(np.searchsorted(hit, starts), hit.size - 1)] if hit.size else starts
+    ends = np.append(starts[1:], values.size)
+    best = np.where((first >= starts) & (first < ends), first, starts)  # NaN runs have no hit
+    return top, best
 
 
 @functools.cache
