@@ -29,9 +29,9 @@ from solubility.sweeps.store import canonical
 
 __all__ = ["assemble", "case_dataset", "csv_text", "sweep_json", "write_csv", "write_netcdf"]
 
-#: solvus attributes that are inputs (coordinates already) or the sweep's own
 #: dimensions of events along a line (partner changes at either end, ends of the field), padded case by case
 _EVENT_DIMS = ("change", "field_end", "change_low")
+#: solvus attributes that are inputs (coordinates already) or the sweep's own
 _DROPPED = {"created", "title", "phase", "solute", "pressure_Pa", "fix", "balance", "exclude"}
 INPUT_COORDS = ("database", "phase", "solute", "pressure", "fix", "exclude", "balance", "case_status", "case_error",
                 "kind")
