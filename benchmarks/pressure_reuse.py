@@ -35,7 +35,7 @@ def main(argv=None) -> int:
     parser.add_argument("--temperatures", type=int, default=100)
     args = parser.parse_args(argv)
 
-    from solubility.thermo.system import cache_info
+    from solubility.thermo.cache import cache_info
 
     T = np.linspace(500.0, 990.0, args.temperatures)
     _line(T, SEEN)  # warm up: load the database and compile the system once

@@ -19,7 +19,7 @@ from solubility.databases.reader import _parse_text
 from solubility.errors import InputError
 from solubility.models.closed_forms import dilute_solubility
 from solubility.models.sublattice import SublatticeModel
-from solubility.thermo.system import CACHE_SIZE, cache_info, compiled_system, database_digest
+from solubility.thermo.cache import CACHE_SIZE, cache_info, compiled_system, database_digest
 
 T = np.array([400.0, 600.0, 800.0])  # K
 #: the engine reproduces the closed form to about 1e-10 (test_solvus_closed_form.py); 1e-6 is the issue's figure

@@ -179,8 +179,8 @@ def prepare_host(database, phase: str, solute: str, *, exclude: Sequence[str] = 
     """
     from solubility.calc.inputs import check_request
     from solubility.calc.partners import PartnerView
+    from solubility.thermo.cache import compiled_system
     from solubility.thermo.ordering import disordered_of, ordering_sublattices
-    from solubility.thermo.system import compiled_system
 
     chk = check_request(database, phase, solute, exclude=exclude, fix=fix, pressure=pressure, balance=balance,
                         parameters=parameters, need_partner=need_partner)

@@ -21,8 +21,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from solubility.thermo.phases import DrivingForce
-from solubility.thermo.system import best_of_runs
+from solubility.thermo.phases import DrivingForce, best_of_runs
 
 __all__ = ["SAME_RADIUS", "SCREEN_RADIUS", "PartnerView", "partner_names", "relabel", "second_set"]
 

@@ -112,7 +112,8 @@ class _Potential:
 
 def _phase_reference(ldb, phase: str, solute: str, pressure: float):
     """T -> Gibbs energy per mole of X of `phase` formed from the solute alone, at its optimum constitution."""
-    from solubility.thermo.system import compiled_system, filter_candidate_phases
+    from solubility.thermo.cache import compiled_system
+    from solubility.thermo.system import filter_candidate_phases
 
     if phase not in filter_candidate_phases(ldb.db, [solute]):
         raise InputError(f"reference phase {phase} cannot form from {solute} alone; give a phase of pure {solute}")

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import contextlib
 import copy
+import hashlib
 import io
 import threading
 import warnings
@@ -27,7 +28,7 @@ from typing import Any
 from solubility.databases.guard import check_expression
 from solubility.errors import DatabaseError
 
-__all__ = ["all_parameters", "copy_database", "function_faults", "parse_tdb"]
+__all__ = ["all_parameters", "copy_database", "database_digest", "function_faults", "parse_tdb"]
 
 _PARSE_LOCK = threading.Lock()
 #: names in expressions that are not FUNCTIONs: the state variables pycalphad substitutes itself
@@ -245,3 +246,26 @@ def copy_database(db: Any) -> Any:
             setattr(new, key, copy.copy(value))
     return new
 
+
+def database_digest(db) -> str:
+    """sha256 of an in-memory pycalphad Database's content: elements, species, reference states, phases (site
+    ratios, constituents, model hints), every parameter and every symbol. Equal content gives an equal digest;
+    a database changed in place gives a new one."""
+    h = hashlib.sha256()
+
+    def put(*items: object) -> None:
+        for item in items:
+            h.update(repr(item).encode())
+            h.update(b"\x1f")
+
+    put(sorted(map(str, db.elements)), sorted(repr(sp) for sp in db.species))
+    put(sorted((str(k), sorted((str(a), repr(b)) for a, b in dict(v).items())) for k, v in db.refstates.items()))
+    for name in sorted(db.phases):
+        ph = db.phases[name]
+        put(name, tuple(float(r) for r in ph.sublattices),
+            tuple(tuple(sorted(repr(sp) for sp in subl)) for subl in ph.constituents),
+            sorted((str(k), repr(v)) for k, v in ph.model_hints.items()))
+    params = sorted(repr(sorted((str(k), str(v)) for k, v in p.items())) for p in db._parameters.all())
+    put(params)
+    put(sorted((str(k), str(v)) for k, v in db.symbols.items()))
+    return h.hexdigest()

@@ -15,7 +15,7 @@ import numpy as np
 from solubility.errors import DatabaseError
 from solubility.thermo.optimise import reduced_basis, sample_constitutions
 
-__all__ = ["DrivingForce", "PhaseFunctions", "phase_functions"]
+__all__ = ["DrivingForce", "PhaseFunctions", "best_of_runs", "phase_functions", "stack_samples"]
 
 
 @dataclass(frozen=True)
@@ -163,3 +163,21 @@ def neutral_samples(samples: np.ndarray, charge: np.ndarray, cap: int = 4000) ->
     w = (-q[j] / (q[i] - q[j]))[:, None]
     mixed = w * samples[i] + (1.0 - w) * samples[j]
     return np.concatenate((zero, mixed))
+
+
+def best_of_runs(values: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Largest value of each run of `values` (runs begin at `starts`) and its index (the first one); a run holding
+    a NaN gives NaN and the index of its first element."""
+    top = np.maximum.reduceat(values, starts)
+    hit = np.flatnonzero(values == np.repeat(top, np.diff(np.append(starts, values.size))))
+    first = hit[np.minimum(np.searchsorted(hit, starts), hit.size - 1)] if hit.size else starts
+    ends = np.append(starts[1:], values.size)
+    best = np.where((first >= starts) & (first < ends), first, starts)  # NaN runs have no hit
+    return top, best
+
+
+def stack_samples(phases: Sequence[PhaseFunctions]) -> tuple[np.ndarray, np.ndarray]:
+    """(mole fractions of every sample of `phases`, stacked phase after phase; where each phase's run begins)."""
+    sizes = [pf.sample_x.shape[0] for pf in phases]
+    return (np.concatenate([pf.sample_x for pf in phases]),
+            np.concatenate(([0], np.cumsum(sizes)[:-1])).astype(int))

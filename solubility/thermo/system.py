@@ -17,44 +17,29 @@ of the phase unless a name says "per atom" (J per mole of atoms). The driving fo
 ``max_y (mu . x(y) - G_m(y))`` per mole of atoms: positive means the phase would lower the Gibbs energy by
 forming, so it is more stable than the reference state that set the chemical potentials.
 
-Compiled systems are cached per process (`compiled_system`, least recently used, `CACHE_SIZE` systems) by the
-content of what they compile: the database's sha256 (or a digest of an in-memory Database's phases, parameters
-and symbols, so a database changed in place is compiled again), the elements, the phases and the names of the
-free parameters. Building one costs hundreds of milliseconds to seconds (code generation); evaluating a phase
-afterwards costs microseconds.
+Compiled systems are cached per process by the content of what they compile (`solubility.thermo.cache`).
+Building one costs hundreds of milliseconds to seconds (code generation); evaluating a phase afterwards costs
+microseconds.
 """
 
 from __future__ import annotations
 
 import functools
-import hashlib
-import threading
-from collections import OrderedDict
 from collections.abc import Mapping, Sequence
 
 import numpy as np
 
 from solubility.errors import DatabaseError, InputError
 from solubility.thermo.optimise import Y_FLOOR, maximise_phi, normalise
-from solubility.thermo.phases import DrivingForce, PhaseFunctions, phase_functions
+from solubility.thermo.phases import DrivingForce, PhaseFunctions, best_of_runs, phase_functions, stack_samples
 
 __all__ = [
-    "CACHE_SIZE",
     "BoundSystem",
     "CompiledSystem",
     "DrivingForce",
     "PhaseFunctions",
-    "best_of_runs",
-    "cache_info",
-    "clear_cache",
-    "compiled_system",
-    "database_digest",
     "filter_candidate_phases",
 ]
-
-#: compiled systems kept per process (least recently used first out); one costs a few MB
-CACHE_SIZE = 16
-
 
 def filter_candidate_phases(db, elements: Sequence[str], phases: Sequence[str] | None = None) -> list[str]:
     """Phases of `db` that can form from `elements` (plus VA), as pycalphad's own filter decides."""
@@ -63,30 +48,6 @@ def filter_candidate_phases(db, elements: Sequence[str], phases: Sequence[str] |
     comps = [*elements, "VA"]
     species = unpack_species(db, comps)
     return sorted(filter_phases(db, species, phases))
-
-
-def database_digest(db) -> str:
-    """sha256 of an in-memory pycalphad Database's content: elements, species, reference states, phases (site
-    ratios, constituents, model hints), every parameter and every symbol. Equal content gives an equal digest;
-    a database changed in place gives a new one."""
-    h = hashlib.sha256()
-
-    def put(*items: object) -> None:
-        for item in items:
-            h.update(repr(item).encode())
-            h.update(b"\x1f")
-
-    put(sorted(map(str, db.elements)), sorted(repr(sp) for sp in db.species))
-    put(sorted((str(k), sorted((str(a), repr(b)) for a, b in dict(v).items())) for k, v in db.refstates.items()))
-    for name in sorted(db.phases):
-        ph = db.phases[name]
-        put(name, tuple(float(r) for r in ph.sublattices),
-            tuple(tuple(sorted(repr(sp) for sp in subl)) for subl in ph.constituents),
-            sorted((str(k), repr(v)) for k, v in ph.model_hints.items()))
-    params = sorted(repr(sorted((str(k), str(v)) for k, v in p.items())) for p in db._parameters.all())
-    put(params)
-    put(sorted((str(k), str(v)) for k, v in db.symbols.items()))
-    return h.hexdigest()
 
 
 class CompiledSystem:
@@ -264,26 +225,19 @@ class BoundSystem:
             The samples' driving forces, phase after phase in the order given, and where each phase's run begins
             (``starts[i]:starts[i + 1]``, the last running to the end).
         """
-        key = tuple(phases)
-        T = float(T)
+        key, T = tuple(phases), float(T)
         cached_T, cache = self._sampled
-        stacked = cache.get(key) if cached_T == T else None
-        if stacked is None:
-            stacked = (np.concatenate([self.gibbs_per_atom_samples(p, T) for p in key]), self._stack(key))
-            cache = self._sampled[1]
-            cache[key] = stacked
-        energies, (x, starts) = stacked
+        energies = cache.get(key) if cached_T == T else None
+        if energies is None:  # (the per-phase energies below refresh the cache to T)
+            energies = np.concatenate([self.gibbs_per_atom_samples(p, T) for p in key])
+            self._sampled[1][key] = energies
+        x, starts = self._stack(key)
         return x @ mu - energies, starts
 
     def _stack(self, key: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """(mole fractions of every sample of the phases `key`, stacked; where each phase's run begins)."""
-        stack = self._stacks.get(key)
-        if stack is None:
-            sizes = [self.phases[p].sample_x.shape[0] for p in key]
-            stack = (np.concatenate([self.phases[p].sample_x for p in key]),
-                     np.concatenate(([0], np.cumsum(sizes)[:-1])).astype(int))
-            self._stacks[key] = stack
-        return stack
+        if key not in self._stacks:  # `solubility.thermo.phases.stack_samples` of the phases `key`, kept
+            self._stacks[key] = stack_samples([self.phases[p] for p in key])
+        return self._stacks[key]
 
     def _sample_energies(self, phase: str, T: float) -> np.ndarray:
         pf = self.phases[phase]
@@ -380,17 +334,6 @@ class BoundSystem:
         return DrivingForce(phase, value, y, n / atoms, converged and bool(np.isfinite(value)))
 
 
-def best_of_runs(values: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Largest value of each run of `values` (runs begin at `starts`) and its index (the first one); a run holding
-    a NaN gives NaN and the index of its first element."""
-    top = np.maximum.reduceat(values, starts)
-    hit = np.flatnonzero(values == np.repeat(top, np.diff(np.append(starts, values.size))))
-    first = hit[np.minimum(np.searchsorted(hit, starts), hit.size - 1)] if hit.size else starts
-    ends = np.append(starts[1:], values.size)
-    best = np.where((first >= starts) & (first < ends), first, starts)  # NaN runs have no hit
-    return top, best
-
-
 @functools.cache
 def _exact_mixing_model():
     """pycalphad's Model with the ideal mixing term kept for every site fraction > 0.
@@ -418,50 +361,3 @@ def _exact_mixing_model():
             return v.R * v.T * term / self._site_ratio_normalization
 
     return ExactMixingModel
-
-
-# ---------------------------------------------------------------------- per-process cache
-_CACHE: OrderedDict[tuple, CompiledSystem] = OrderedDict()
-_CACHE_LOCK = threading.Lock()
-_STATS = {"builds": 0, "hits": 0}
-
-
-def compiled_system(db, elements: Sequence[str], phases: Sequence[str], parameters: Sequence[str] = (),
-                    *, key: str | None = None) -> CompiledSystem:
-    """The cached `CompiledSystem` for this database content, elements, phases and free parameters.
-
-    Parameters
-    ----------
-    db
-        pycalphad Database.
-    elements, phases, parameters
-        As in `CompiledSystem`.
-    key
-        A stable identity of the database's content (the sha256 of its file); by default `database_digest(db)`.
-    """
-    content = key if key is not None else database_digest(db)
-    cache_key = (content, tuple(sorted(elements)), tuple(sorted(phases)), tuple(sorted(map(str, parameters))))
-    with _CACHE_LOCK:
-        system = _CACHE.get(cache_key)
-        if system is not None:
-            _CACHE.move_to_end(cache_key)
-            _STATS["hits"] += 1
-            return system
-        system = CompiledSystem(db, sorted(elements), sorted(phases), sorted(map(str, parameters)))
-        _STATS["builds"] += 1
-        _CACHE[cache_key] = system
-        while len(_CACHE) > CACHE_SIZE:
-            _CACHE.popitem(last=False)
-    return system
-
-
-def cache_info() -> dict[str, int]:
-    """Counters of the compiled-system cache: ``builds`` (compilations), ``hits``, ``size``, ``max_size``."""
-    with _CACHE_LOCK:
-        return {**_STATS, "size": len(_CACHE), "max_size": CACHE_SIZE}
-
-
-def clear_cache() -> None:
-    """Forget every compiled system (the counters stay)."""
-    with _CACHE_LOCK:
-        _CACHE.clear()
