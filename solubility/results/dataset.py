@@ -224,16 +224,8 @@ def solvus_json(ds) -> dict:
     (null when the line has no point, or fewer than two to fit).
     """
     ok = ds["status"].values == "ok"
-    changes = []
-    for t, x, w, b, a in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
-                             ds["partner_change_W"].values, ds["partner_below"].values,
-                             ds["partner_above"].values, strict=True):
-        w = _finite(w)
-        changes.append({"temperature_K": _finite(t), "mole_fraction": _finite(x), "mass_fraction": w,
-                        "wt_percent": None if w is None else 100.0 * w, "ppm": None if w is None else 1e6 * w,
-                        "below": str(b).split("+"), "above": str(a).split("+")})
     ext, fit = _summary(ds)
-    from solubility.results.lower_end import lower_json
+    from solubility.results.lower_end import changes_json, lower_json
 
     return {
         "temperature_K": [float(t) for t in ds["T"].values],
@@ -245,7 +237,7 @@ def solvus_json(ds) -> dict:
         "converged": [bool(v) for v in ds["converged"].values],
         "status": [str(v) for v in ds["status"].values],
         "reason": [str(v) for v in ds["reason"].values],
-        "partner_changes": changes,
+        "partner_changes": changes_json(ds),
         "extreme": ext,
         "fit": fit,
         "database": ds.attrs.get("database"),
@@ -277,10 +269,10 @@ def csv_text(ds) -> str:
     buf = io.StringIO()
     for k, v in ds.attrs.items():
         buf.write(f"# {k}: {v}\n")
-    for i in range(ds.sizes.get("change", 0)):
-        buf.write(f"# partner_change: T [K] {_cell(ds['partner_change_T'].values[i])}, X [1] "
-                  f"{_cell(ds['partner_change_X'].values[i])}, W [1] {_cell(ds['partner_change_W'].values[i])}, "
-                  f"{ds['partner_below'].values[i]} below, {ds['partner_above'].values[i]} above\n")
+    from solubility.results.lower_end import CSV_COLUMNS, change_csv
+
+    for text in change_csv(ds, _cell):
+        buf.write(text)
     if "extreme_T" not in ds:
         from solubility.results.summary import add_summary
 
@@ -290,9 +282,7 @@ def csv_text(ds) -> str:
         units = ds[name].attrs.get("units")
         buf.write(f"# {name}{f' [{units}]' if units else ''}: {_cell(ds[name].values.item())}"
                   f"  ({ds[name].attrs['long_name']})\n")
-    from solubility.results.lower_end import CSV_COLUMNS, lower_change_csv
-
-    for text in lower_change_csv(ds, _cell):
+    for text in change_csv(ds, _cell, low=True):
         buf.write(text)
     for i in range(ds.sizes.get("field_end", 0)):
         buf.write(f"# field_end: T [K] {_cell(ds['field_end_T'].values[i])}, X [1] "

@@ -1,4 +1,6 @@
-"""The lower end of the host's field and the temperatures where the field opens or closes, in the solvus Dataset.
+"""The lower end of the host's field and the temperatures where the field opens or closes, in the solvus Dataset;
+the partner changes of either end as JSON, CSV header lines and table lines (`change_rows` and the functions after
+it).
 
 Variables (dims ``T``; ``field_end`` for the openings and closings), present when the line solved them
 (`solubility.calc.lower`):
@@ -34,8 +36,8 @@ import math
 
 import numpy as np
 
-__all__ = ["CSV_COLUMNS", "field_end_lines", "lower_change_csv", "lower_change_lines", "lower_json", "lower_lines",
-           "lower_runs", "lower_variables"]
+__all__ = ["CSV_COLUMNS", "change_csv", "change_lines", "change_rows", "changes_json", "field_end_lines", "lower_json",
+           "lower_lines", "lower_runs", "lower_variables"]
 
 #: the CSV columns of the lower end (after the solvus's own)
 CSV_COLUMNS = ["X_LOW", "W_LOW", "WT%_LOW", "PPM_LOW", "Y_LOW", "partner_low", "status_low", "reason_low"]
@@ -130,16 +132,30 @@ def lower_json(ds) -> dict:
         "lower_status": [str(v) for v in ds["status_low"].values],
         "lower_reason": [str(v) for v in ds["reason_low"].values],
         "field_ends": ends,
-        **({"lower_partner_changes": _changes(ds)} if "partner_low_change_T" in ds else {}),
+        **({"lower_partner_changes": changes_json(ds, low=True)} if "partner_low_change_T" in ds else {}),
     }
 
 
-def _changes(ds) -> list[dict]:
-    """The lower end's partner changes as JSON objects (the keys of the solvus's ``partner_changes``)."""
+#: the Dataset's variables of partner changes at each end of the field: T, X, W, below, above
+_CHANGE_VARS = {
+    False: ("partner_change_T", "partner_change_X", "partner_change_W", "partner_below", "partner_above"),
+    True: ("partner_low_change_T", "partner_low_change_X", "partner_low_change_W", "partner_low_below",
+           "partner_low_above"),
+}
+
+
+def change_rows(ds, low: bool = False) -> list[tuple]:
+    """(T K, X, W, below, above) of each partner change at the upper end (the solvus) or the lower end."""
+    names = _CHANGE_VARS[low]
+    if names[0] not in ds:
+        return []
+    return list(zip(*(ds[n].values for n in names), strict=True))
+
+
+def changes_json(ds, low: bool = False) -> list[dict]:
+    """Partner changes at one end as JSON objects (``partner_changes``, ``lower_partner_changes``)."""
     out = []
-    for t, x, w, b, a in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
-                             ds["partner_low_change_W"].values, ds["partner_low_below"].values,
-                             ds["partner_low_above"].values, strict=True):
+    for t, x, w, b, a in change_rows(ds, low):
         w = _finite(w)
         out.append({"temperature_K": _finite(t), "mole_fraction": _finite(x), "mass_fraction": w,
                     "wt_percent": None if w is None else 100.0 * w, "ppm": None if w is None else 1e6 * w,
@@ -147,30 +163,24 @@ def _changes(ds) -> list[dict]:
     return out
 
 
-def lower_change_csv(ds, cell) -> list[str]:
-    """The CSV header lines (``# lower_partner_change: ...``) of the lower end's partner changes; `cell(value)`
-    writes a number in full precision."""
-    if "partner_low_change_T" not in ds:
-        return []
-    return [f"# lower_partner_change: T [K] {cell(t)}, X [1] {cell(x)}, W [1] {cell(w)}, {b} below, {a} above\n"
-            for t, x, w, b, a in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
-                                     ds["partner_low_change_W"].values, ds["partner_low_below"].values,
-                                     ds["partner_low_above"].values, strict=True)]
+def change_csv(ds, cell, low: bool = False) -> list[str]:
+    """CSV header lines (``# partner_change: ...``, ``# lower_partner_change: ...``) of one end's partner
+    changes; `cell(value)` writes a number in full precision."""
+    key = "lower_partner_change" if low else "partner_change"
+    return [f"# {key}: T [K] {cell(t)}, X [1] {cell(x)}, W [1] {cell(w)}, {b} below, {a} above\n"
+            for t, x, w, b, a in change_rows(ds, low)]
 
 
-def lower_change_lines(ds, composition, temperature) -> list[str]:
-    """Table lines of the lower end's partner changes (beside the solvus's partner changes)."""
-    if "partner_low_change_T" not in ds:
-        return []
+def change_lines(ds, composition, temperature, low: bool = False) -> list[str]:
+    """Table lines of one end's partner changes."""
+    which = "lower end's partner" if low else "partner"
     out = []
-    for Tc, xc, wc, below, above in zip(ds["partner_low_change_T"].values, ds["partner_low_change_X"].values,
-                                        ds["partner_low_change_W"].values, ds["partner_low_below"].values,
-                                        ds["partner_low_above"].values, strict=True):
+    for Tc, xc, wc, below, above in change_rows(ds, low):
         if math.isfinite(float(Tc)):
-            out.append(f"lower end's partner changes at {temperature(float(Tc))}: {below} below, {above} above; "
+            out.append(f"{which} changes at {temperature(float(Tc))}: {below} below, {above} above; "
                        f"{composition(float(xc), float(wc))}")
         else:
-            out.append(f"lower end's partner changes at an unlocated temperature: {below} below, {above} above")
+            out.append(f"{which} changes at an unlocated temperature: {below} below, {above} above")
     return out
 
 

@@ -59,9 +59,9 @@ def extreme(ds) -> dict | None:
     i = int(ok[np.argmax(X[ok])])
     best = {"T": float(T[i]), "X": float(X[i]), "W": float(W[i]), "partner": str(ds["partner"].values[i]),
             "at_change": False}
-    for Tc, xc, wc, below, above in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
-                                        ds["partner_change_W"].values, ds["partner_below"].values,
-                                        ds["partner_above"].values, strict=True):
+    from solubility.results.lower_end import change_rows
+
+    for Tc, xc, wc, below, above in change_rows(ds):
         if math.isfinite(float(xc)) and float(xc) > best["X"]:
             best = {"T": float(Tc), "X": float(xc), "W": float(wc), "partner": f"{below}|{above}",
                     "at_change": True}

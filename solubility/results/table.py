@@ -67,17 +67,10 @@ def solvus_table(ds) -> str:
         cells = " ".join(f"{cols[n][i]:>{width[n]}}" for n in cols)
         note = ds["partner"].values[i] if ok[i] else f"[{ds['status'].values[i]}] {ds['reason'].values[i]}"
         lines.append(f"{head}{cells}  {note}")
-    for Tc, xc, wc, below, above in zip(ds["partner_change_T"].values, ds["partner_change_X"].values,
-                                        ds["partner_change_W"].values, ds["partner_below"].values,
-                                        ds["partner_above"].values, strict=True):
-        if math.isfinite(float(Tc)):
-            lines.append(f"partner changes at {_temperature(float(Tc))}: {below} below, {above} above; "
-                         f"{_composition(float(xc), float(wc))}")
-        else:
-            lines.append(f"partner changes at an unlocated temperature: {below} below, {above} above")
-    from solubility.results.lower_end import field_end_lines, lower_change_lines, lower_lines
+    from solubility.results.lower_end import change_lines, field_end_lines, lower_lines
 
-    lines += lower_change_lines(ds, _composition, _temperature)
+    lines += change_lines(ds, _composition, _temperature)
+    lines += change_lines(ds, _composition, _temperature, low=True)
     lines += field_end_lines(ds, _composition, _temperature)
     lines += lower_lines(ds, column)
     if "extreme_X" in ds and math.isfinite(float(ds["extreme_X"])):
