@@ -58,10 +58,15 @@ def data_sha256(ds) -> str:
     for name in sorted(ds.variables):
         values = ds[name].values
         text = values.tolist() if values.dtype.kind in "OSU" else [str(values.dtype), values.shape]
-        digest.update(json.dumps([name, ds[name].dims, text], default=str).encode())
+        digest.update(json.dumps([name, ds[name].dims, text], default=_plain).encode())
         digest.update(b"" if values.dtype.kind in "OSU" else values.tobytes())
     attrs = {k: v for k, v in ds.attrs.items() if k != DATA_SHA}
-    return hashlib.sha256(digest.digest() + json.dumps(attrs, sort_keys=True, default=str).encode()).hexdigest()
+    return hashlib.sha256(digest.digest() + json.dumps(attrs, sort_keys=True, default=_plain).encode()).hexdigest()
+
+
+def _plain(value: Any) -> Any:
+    """A numpy value (an attribute read back from NetCDF) as JSON takes it."""
+    return value.tolist() if hasattr(value, "tolist") else str(value)
 
 
 class Store:
