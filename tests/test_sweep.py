@@ -153,8 +153,7 @@ def test_store_and_resume(serial, tmp_path):
     assert_same_sweep(full, serial)
     files = sorted(p.name for p in store.iterdir())
     # the failed case (4) is not stored: it runs again on resume
-    assert files == ["case-00000.nc", "case-00001.nc", "case-00002.nc", "case-00003.nc", "finished.jsonl",
-                     "manifest.json"]
+    assert files == ["case-00000.nc", "case-00001.nc", "case-00002.nc", "case-00003.nc", "manifest.json"]
     # a run that stopped after some cases: remove two case files, leave a half-written temporary file
     (store / "case-00001.nc").unlink()
     (store / "case-00003.nc").unlink()
@@ -179,7 +178,7 @@ def test_store_of_another_job_is_refused_unless_overwrite(tmp_path):
         sweep(CASES[:1], workers=0, store=store)
     again = sweep(CASES[1:2], workers=0, store=store, overwrite=True)
     assert again["case"].values.tolist() == ["austenite"]
-    assert sorted(p.name for p in store.iterdir()) == ["case-00000.nc", "finished.jsonl", "manifest.json"]
+    assert sorted(p.name for p in store.iterdir()) == ["case-00000.nc", "manifest.json"]
     manifest = json.loads((store / "manifest.json").read_text())
     assert [c["name"] for c in manifest["cases"]] == ["austenite"]
 

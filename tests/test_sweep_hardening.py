@@ -3,7 +3,8 @@
 Every check runs the installed command in a real subprocess with a timeout (a hang is a failure, not a slow
 pass) and asserts the exit status, a single line on standard error without a traceback, and the files present
 afterwards. The cases: job files that expand to 1e8 and 1e10 cases; damaged stores (a case file with a variable
-removed, a number or the temperatures changed, deeply nested JSON in a case file, the journal or the manifest);
+removed, a number or the temperatures changed, another case's file in its place, deeply nested JSON in a case
+file or the manifest);
 the store lock (a live owner refuses a second job, a stale one is taken over); dask scheduler addresses that are
 garbage, empty or http://, and a scheduler that accepts the connection and never answers; SIGTERM to the parent
 while workers run; outputs that are inputs. All on the bundled Fe-C database (Hallstedt et al., Calphad 34
@@ -106,7 +107,7 @@ DAMAGE = {
     "number tampered": (lambda s: _edit_case(s, lambda ds: ds.assign(X=ds["X"] * 1.0001)), "case 'ferrite'"),
     "temperatures edited": (lambda s: _edit_case(s, lambda ds: ds.assign_coords(T=ds["T"] + 1)), "case 'ferrite'"),
     "nested JSON as a case file": (lambda s: (s / "case-00000.nc").write_text(NESTED), "case 'ferrite'"),
-    "nested JSON in the journal": (lambda s: (s / "finished.jsonl").write_text(NESTED + "\n"), "finished.jsonl"),
+    "another case's file": (lambda s: shutil.copy(s / "case-00001.nc", s / "case-00000.nc"), "case 'ferrite'"),
     "nested JSON as the manifest": (lambda s: (s / "manifest.json").write_text(NESTED), "manifest.json"),
 }
 

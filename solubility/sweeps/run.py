@@ -3,7 +3,7 @@
 The local pool is a `concurrent.futures.ProcessPoolExecutor` started with "forkserver" where there is one (the
 server imports the engine once; the caller, which may run threads, is never forked), else "spawn". Cases go
 grouped by compiled system (database, elements, phases), so that a worker mostly meets a system it has built;
-on dask, a system's cases prefer one worker.
+dask schedules the cases on its own. Both give futures, collected as they complete.
 """
 
 from __future__ import annotations
@@ -66,11 +66,10 @@ def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = No
         scheduler instead: an address ``tcp://HOST:PORT``, a ``distributed.Client`` or a cluster.
     store, resume, overwrite
         Folder where each finished case is written at once, locked while the sweep runs
-        (`solubility.sweeps.store`); keep its finished cases (checked) and run the others; start it afresh
-        when it holds another job, or this one when not resuming.
+        (`solubility.sweeps.store`); keep its finished cases and run the others; start it afresh.
     progress
-        True: a tqdm bar on standard error; a callable ``f(done, total, case, status)``, called first with
-        ``(cases taken from the store, total, None, "start")`` then after every case; None/False: nothing.
+        True: a tqdm bar on standard error; or ``f(done, total, case, status)``, called first with
+        ``(cases taken from the store, total, None, "start")`` then after every case.
     strict
         Raise the error of the first failed case (named after the case) instead of recording it.
     connect_timeout
@@ -79,8 +78,7 @@ def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = No
     Returns
     -------
     xarray.Dataset
-        Dims ``case`` and ``T`` (K) as `solubility.sweeps.assemble` describes; the same whichever executor ran
-        it, and whether resumed.
+        Dims ``case`` and ``T`` (K) as `solubility.sweeps.assemble` describes, whichever executor ran it.
 
     Raises
     ------
@@ -110,10 +108,10 @@ def sweep(cases: Iterable[Case | Mapping[str, Any]], *, workers: int | None = No
         todo = [(i, c) for i, c in enumerate(case_list) if i not in results]
         if progress:
             progress(len(results), len(case_list), None, "start")
-        if scheduler is not None:
-            outcomes = _dask(todo, scheduler, connect_timeout)
-        elif workers == 0:
+        if not todo or (workers == 0 and scheduler is None):
             outcomes = ((i, *run_case(c)) for i, c in todo)
+        elif scheduler is not None:
+            outcomes = _dask(todo, scheduler, connect_timeout)
         else:
             outcomes = _local(todo, min(workers or _cpus(), len(todo)))
         for index, error, ds in outcomes:
@@ -197,20 +195,19 @@ class Progress:
         self.done = self.ran = 0
 
     def __call__(self, done: int, total: int, case: Case | None, status: str) -> None:
-        self.done, self.ran = done, self.ran + (case is not None)
-        if case is None and self.bar is True:
-            from tqdm import tqdm
+        from tqdm import tqdm
 
-            self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep")
-        elif case is not None and not isinstance(self.bar, bool):
+        self.done, self.ran = done, self.ran + (case is not None)
+        if case is None and not hasattr(self.bar, "update"):
+            self.bar = tqdm(total=total, initial=done, unit="case", file=sys.stderr, dynamic_ncols=True, desc="sweep",
+                            disable=self.bar is not True)
+        elif case is not None:
             self.bar.set_postfix_str(f"{case.name}: {status}", refresh=False)
             self.bar.update(1)
 
     def close(self) -> None:
         """Close the bar."""
-        if not isinstance(self.bar, bool):
-            self.bar.close()
-        self.bar = False
+        getattr(self.bar, "close", lambda: None)()
 
 
 def _cpus() -> int:
@@ -220,11 +217,6 @@ def _cpus() -> int:
 def _ignore_sigint() -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group; the parent stops the workers
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
-
-
-def _by_system(items: list[tuple[int, Case]]) -> list[tuple[int, Case]]:
-    first: dict[tuple, int] = {}
-    return sorted(items, key=lambda item: first.setdefault(item[1].system_key, len(first)))
 
 
 def _outcomes(futures: dict, completed: Iterable, died: str = "") -> Iterator[tuple[int, str, Any]]:
@@ -238,26 +230,24 @@ def _outcomes(futures: dict, completed: Iterable, died: str = "") -> Iterator[tu
 
 
 def _local(items: list[tuple[int, Case]], workers: int) -> Iterator[tuple[int, str, Any]]:
-    if not items:
-        return
     forkserver = sys.platform != "darwin" and "forkserver" in multiprocessing.get_all_start_methods()
     ctx = multiprocessing.get_context("forkserver" if forkserver else "spawn")
     if forkserver:
         ctx.set_forkserver_preload(list(PRELOAD))
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_ignore_sigint)
-    finished = False
+    first: dict[tuple, int] = {}  # a system's cases one after the other: a worker mostly meets a system it built
+    items = sorted(items, key=lambda item: first.setdefault(item[1].system_key, len(first)))
     try:
-        futures = {pool.submit(run_case, case): index for index, case in _by_system(items)}
+        futures = {pool.submit(run_case, case): index for index, case in items}
         yield from _outcomes(futures, as_completed(futures), "WorkerDied: ")  # BrokenProcessPool: a worker died
-        finished = True
+    except BaseException:  # interrupted or closed early: stop the workers now rather than after their current case
+        processes = list((getattr(pool, "_processes", None) or {}).values())
+        pool.shutdown(wait=False, cancel_futures=True)
+        for process in processes:
+            process.terminate()
+            process.join(10)
+        raise
     finally:
-        if not finished:  # interrupted: stop the workers now rather than after their current case
-            processes = list((getattr(pool, "_processes", None) or {}).values())
-            pool.shutdown(wait=False, cancel_futures=True)
-            for process in processes:
-                process.terminate()
-            for process in processes:
-                process.join(10)
         pool.shutdown(wait=True)
 
 
@@ -296,26 +286,17 @@ def _dask(items: list[tuple[int, Case]], scheduler: Any, timeout: float) -> Iter
         import distributed
     except ImportError:
         raise InputError("a dask scheduler needs dask.distributed: pip install 'solubility[dask]'") from None
-    if not items:
-        return
-    if isinstance(scheduler, distributed.Client):
-        client, own = scheduler, False
-    elif isinstance(scheduler, str):
+    if isinstance(scheduler, str):
         _probe(check_address(scheduler), timeout)
-        client, own = distributed.Client(scheduler.strip(), timeout=timeout, set_as_default=False), True
-    elif hasattr(scheduler, "scheduler_address"):  # a cluster object (LocalCluster, ...)
-        client, own = distributed.Client(scheduler, timeout=timeout, set_as_default=False), True
-    else:
+    elif not isinstance(scheduler, distributed.Client) and not hasattr(scheduler, "scheduler_address"):
         raise InputError("scheduler must be an address tcp://HOST:PORT, a distributed.Client or a cluster, got "
                          f"{type(scheduler).__name__}")
-    futures = {}
+    own = not isinstance(scheduler, distributed.Client)
+    client = distributed.Client(scheduler.strip() if isinstance(scheduler, str) else scheduler, timeout=timeout,
+                                set_as_default=False) if own else scheduler
+    futures: dict = {}
     try:
-        workers = sorted(client.scheduler_info(n_workers=-1)["workers"]) or [None]
-        home: dict[tuple, Any] = {}
-        for index, case in items:
-            where = home.setdefault(case.system_key, workers[len(home) % len(workers)])
-            restrict = {"workers": [where], "allow_other_workers": True} if where else {}
-            futures[client.submit(run_case, case, pure=False, **restrict)] = index
+        futures.update({client.submit(run_case, case, pure=False): index for index, case in items})
         yield from _outcomes(futures, distributed.as_completed(list(futures), loop=client.loop))
     finally:
         client.cancel(list(futures))

@@ -1,18 +1,17 @@
 """The sweep store: a folder where every finished case is written as soon as it completes, read back on resume.
 
 ``manifest.json`` holds the job (format, job sha256, every case's name and input sha256; written once, first),
-``finished.jsonl`` a line per finished case (index, name, file, the file's sha256: one append, not a rewrite),
-``case-00000.nc`` the Dataset of finished case 0 (NetCDF-4, serialized in memory and written atomically, so a
-full disk is a clean error and a kill leaves no half file) and ``lock`` the process using the store. A failed
-case is not stored: it runs again on resume. On resume every file listed in the journal must have its recorded
-sha256 and the case's temperatures, else the store is refused as damaged (`DamagedStoreError`).
+``case-00000.nc`` the Dataset of finished case 0 and ``lock`` the process using the store. A case file is
+serialized in memory and written atomically (a full disk is a clean error, a kill leaves no half file), so a
+case is finished iff its file exists; a failed case is not stored and runs again on resume. Each file carries
+in its attributes the sha256 of its case's inputs and of its own data: on resume a file that was edited, cut
+short or belongs to another case is refused (`DamagedStoreError`).
 """
 
 from __future__ import annotations
 
 import contextlib
 import hashlib
-import io
 import json
 import os
 import re
@@ -27,11 +26,13 @@ from solubility.sweeps.job import Case, job_sha256
 
 __all__ = ["DamagedStoreError", "Store", "canonical"]
 
-FORMAT, FORMAT_VERSION = "solubility sweep store", 2
-MANIFEST, JOURNAL, LOCK = "manifest.json", "finished.jsonl", "lock"
-#: the largest manifest or journal read back (a case needs about 200 bytes in each)
+FORMAT, FORMAT_VERSION = "solubility sweep store", 3
+MANIFEST, LOCK = "manifest.json", "lock"
+#: the largest manifest read back (a case needs about 200 bytes)
 MAX_TEXT = 64 * 2**20
-_OURS = re.compile(r"^(manifest\.json|finished\.jsonl|lock|case-\d{5,}\.nc|\..*\.part)$")
+#: the attributes of a case file that tie it to its case and its data
+CASE_SHA, DATA_SHA = "sweep_case_sha256", "sweep_data_sha256"
+_OURS = re.compile(r"^(manifest\.json|lock|case-\d{5,}\.nc|\..*\.part)$")
 
 
 class DamagedStoreError(OutputError):
@@ -51,11 +52,21 @@ def canonical(ds):
     return ds
 
 
-def _read_text(store: Path, name: str) -> str:
-    """The text of the manifest or the journal; larger than `MAX_TEXT` bytes, the store is damaged."""
-    if (store / name).stat().st_size > MAX_TEXT:
-        raise DamagedStoreError(store, f"{name} is larger than {MAX_TEXT} bytes")
-    return (store / name).read_text(encoding="utf-8", errors="replace")
+def data_sha256(ds) -> str:
+    """SHA-256 of a canonical Dataset's variables (names, dims, values) and attributes but `DATA_SHA`."""
+    digest = hashlib.sha256()
+    for name in sorted(ds.variables):
+        values = ds[name].values
+        text = values.tolist() if values.dtype.kind in "OSU" else [str(values.dtype), values.shape]
+        digest.update(json.dumps([name, ds[name].dims, text], default=_plain).encode())
+        digest.update(b"" if values.dtype.kind in "OSU" else values.tobytes())
+    attrs = {k: v for k, v in ds.attrs.items() if k != DATA_SHA}
+    return hashlib.sha256(digest.digest() + json.dumps(attrs, sort_keys=True, default=_plain).encode()).hexdigest()
+
+
+def _plain(value: Any) -> Any:
+    """A numpy value (an attribute read back from NetCDF) as JSON takes it."""
+    return value.tolist() if hasattr(value, "tolist") else str(value)
 
 
 class Store:
@@ -95,7 +106,6 @@ class Store:
 
     def _lock(self) -> None:
         lock = self.path / LOCK
-        me = f"{os.getpid()} {socket.gethostname()}\n"
         for _ in range(2):
             try:
                 fd = os.open(lock, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
@@ -110,7 +120,7 @@ class Store:
             except OSError as exc:
                 raise OutputError(f"store folder {str(self.path)!r} is not writable: {exc.strerror}") from None
             with os.fdopen(fd, "w") as fh:
-                fh.write(me)
+                fh.write(f"{os.getpid()} {socket.gethostname()}\n")
             self.locked = True
             return
         raise OutputError(f"store {str(self.path)!r}: another sweep took its lock at the same moment; try again")
@@ -128,7 +138,9 @@ class Store:
     def _prepare(self, resume: bool, overwrite: bool) -> None:
         p = self.path
         try:
-            manifest = json.loads(_read_text(p, MANIFEST)) if (p / MANIFEST).exists() else None
+            if (p / MANIFEST).exists() and (p / MANIFEST).stat().st_size > MAX_TEXT:
+                raise ValueError
+            manifest = json.loads((p / MANIFEST).read_text(encoding="utf-8")) if (p / MANIFEST).exists() else None
         except (OSError, ValueError, RecursionError):
             raise DamagedStoreError(p, f"{MANIFEST} cannot be read") from None
         if manifest is not None:
@@ -141,7 +153,7 @@ class Store:
                                   "folder or pass overwrite")
             elif manifest.get("job_sha256") == self.job and resume:
                 return
-            elif not overwrite and (p / JOURNAL).exists():
+            elif not overwrite and any(p.glob("case-*.nc")):
                 raise OutputError(f"store {str(p)!r} already holds cases of this job; pass resume to continue, "
                                   "or overwrite")
         for entry in p.iterdir():  # start afresh: only the store's own files are removed
@@ -156,66 +168,46 @@ class Store:
         }, indent=1) + "\n")
 
     def write(self, index: int, ds) -> None:
-        """Store the Dataset of finished case `index`: its file atomically, then its line in the journal.
+        """Store the Dataset of finished case `index` atomically, with its case's and its own sha256.
 
         Raises
         ------
         OutputError
             The file cannot be written (full disk, unwritable folder); the store stays resumable.
         """
-        data = bytes(canonical(ds).to_netcdf(engine="h5netcdf"))  # in memory: a full disk fails cleanly below
-        name = f"case-{index:05d}.nc"
-        line = json.dumps({"index": index, "name": self.cases[index].name, "file": name,
-                           "sha256": hashlib.sha256(data).hexdigest()}) + "\n"
+        ds = canonical(ds)
+        ds.attrs[CASE_SHA] = self.cases[index].sha256()
+        ds.attrs[DATA_SHA] = data_sha256(ds)
+        data = bytes(ds.to_netcdf(engine="h5netcdf"))  # in memory: a full disk fails cleanly below
         try:
-            atomic_write(self.path / name, lambda tmp: tmp.write_bytes(data))
-            with open(self.path / JOURNAL, "a", encoding="utf-8") as fh:
-                fh.write(line)
-                fh.flush()
-                os.fsync(fh.fileno())
+            atomic_write(self.path / f"case-{index:05d}.nc", lambda tmp: tmp.write_bytes(data))
         except OSError as exc:
             raise WriteError(f"{exc}; the store keeps every case finished so far, rerun with resume") from None
 
     def finished(self) -> dict[int, Any]:
-        """The Datasets of the finished cases, by index, each checked against the journal and its case.
+        """The Datasets of the finished cases (those with a file), by index, each checked against its case.
 
         Raises
         ------
         DamagedStoreError
-            The journal cannot be read, or a case file listed in it was changed or is not the case's result.
+            A case file cannot be read, was changed, or is not the result of its case.
         """
         import xarray as xr
 
-        if not (self.path / JOURNAL).exists():
-            return {}
-        lines = _read_text(self.path, JOURNAL).split("\n")[:-1]  # what follows the last newline: an append cut short
         done: dict[int, Any] = {}
-        for number, text in enumerate(lines, start=1):
-            if not text.strip():
+        for index, case in enumerate(self.cases):
+            path = self.path / f"case-{index:05d}.nc"
+            if not path.exists():
                 continue
             try:
-                entry = json.loads(text)
-                index, name, digest = int(entry["index"]), entry["name"], entry["sha256"]
-                case = self.cases[index]
-                if case.name != name or entry["file"] != f"case-{index:05d}.nc":
-                    raise ValueError
-            except (ValueError, KeyError, TypeError, IndexError, RecursionError):
-                raise DamagedStoreError(self.path, f"{JOURNAL} line {number}") from None
-            where = f"case {name!r}"
-            try:
-                data = (self.path / entry["file"]).read_bytes()
-            except FileNotFoundError:
-                continue  # the file was removed: the case runs again
-            if hashlib.sha256(data).hexdigest() != digest:
-                raise DamagedStoreError(self.path, f"{where} (its file does not match its sha256)")
-            try:
-                with xr.open_dataset(io.BytesIO(data), engine="h5netcdf") as ds:
+                with xr.open_dataset(path, engine="h5netcdf") as ds:
                     ds = canonical(ds.load())
-                ok = [round(float(t), 6) for t in ds["T"].values] == list(case.temperatures)
+                ok = ds.attrs.get(CASE_SHA) == case.sha256() and ds.attrs.get(DATA_SHA) == data_sha256(ds)
             except Exception:  # whatever h5py makes of a corrupt file, the answer is the same
                 ok = False
             if not ok:
-                raise DamagedStoreError(self.path, f"{where} (its file is not this case's result)")
+                raise DamagedStoreError(self.path, f"case {case.name!r} (its file is not this case's result)")
+            ds.attrs = {k: v for k, v in ds.attrs.items() if k not in (CASE_SHA, DATA_SHA)}
             done[index] = ds
         return done
 
