@@ -380,12 +380,13 @@ def solvus_line(req: HostRequest, temperatures: Sequence[float], *, hooks=None, 
             prev_low = None  # no lower end here: a change of its partner is not sought across the gap
     view = engine.system
     if hasattr(view, "label"):
+        def named(cs: list[PartnerChange], sides: list[tuple[Mapping, Mapping]]) -> list[PartnerChange]:
+            return [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
+                    for c, (lo, hi) in zip(cs, sides, strict=True)]
+
         points = [relabel(view, p) for p in points]
         lows = [None if p is None else relabel(view, p) for p in lows]
-        changes = [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
-                   for c, (lo, hi) in zip(changes, ends, strict=True)]
-        low_changes = [replace(c, below=partner_names(view, c.below, lo), above=partner_names(view, c.above, hi))
-                       for c, (lo, hi) in zip(low_changes, low_ends, strict=True)]
+        changes, low_changes = named(changes, ends), named(low_changes, low_ends)
         field_ends = [replace(f, partners=partner_names(view, f.partners, y))
                       for f, y in zip(field_ends, field_y, strict=True)]
     return SolvusLine(tuple(points), tuple(changes), host, tuple(system.elements),

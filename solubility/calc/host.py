@@ -269,7 +269,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
     """
     hints = hints or {}
     screened = system.screen(mu, T, phases)
-    _check_finite(screened.items(), T)
+    _check_finite(((phase, best[0]) for phase, best in screened.items()), T)
     if quick and max((v for v, *_ in screened.values()), default=-math.inf) > 0:
         return {phase: DrivingForce(phase, *best, True) for phase, best in screened.items()}
     out = {}
@@ -293,7 +293,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
             alt = system.driving_force(phase, mu, T, y_best)
             if alt.value > best.value:
                 best = alt
-        _check_finite([(phase, (best.value,))], T)
+        _check_finite([(phase, best.value)], T)
         margins[phase] = max(margins[phase], 20.0 * (best.value - value))
         out[phase] = best
     return out
@@ -302,7 +302,7 @@ def refine(system, phases: Sequence[str], mu: np.ndarray, T: float, hints: Mappi
 def _check_finite(items, T: float) -> None:
     """Raise FloatingPointError naming the first phase whose driving force is not a finite number (a NaN or
     infinite Gibbs energy: a database fault such as LN of a negative number), so the point fails, never passes."""
-    for phase, (value, *_) in items:
+    for phase, value in items:
         if not math.isfinite(value):
             raise FloatingPointError(f"the Gibbs energy of {phase} is not a finite number at T = {T:g} K")
 

@@ -144,13 +144,10 @@ def _draw_segments(ax, ds, var, factor, temperature, labels, colours):
 
 def _change_lines(ax, ds, temperature, labels, obstacles):
     tu = _tu(temperature)
-    events = [("", Tc, below, above) for Tc, below, above in zip(
-        ds["partner_change_T"].values, ds["partner_below"].values, ds["partner_above"].values, strict=True)]
-    if "partner_low_change_T" in ds:  # the lower end's partner changes (`solubility.results.lower_end`)
-        events += [("lower end ", Tc, below, above) for Tc, below, above in zip(
-            ds["partner_low_change_T"].values, ds["partner_low_below"].values, ds["partner_low_above"].values,
-            strict=True)]
-    for which, Tc, below, above in events:
+    from solubility.results.lower_end import change_rows
+
+    events = [(which, row) for low, which in ((False, ""), (True, "lower end ")) for row in change_rows(ds, low)]
+    for which, (Tc, _, _, below, above) in events:
         if not math.isfinite(float(Tc)):
             continue
         shown = _shown(float(Tc), temperature)

@@ -41,6 +41,7 @@ __all__ = [
     "filter_candidate_phases",
 ]
 
+
 def filter_candidate_phases(db, elements: Sequence[str], phases: Sequence[str] | None = None) -> list[str]:
     """Phases of `db` that can form from `elements` (plus VA), as pycalphad's own filter decides."""
     from pycalphad.core.utils import filter_phases, unpack_species
